@@ -1,0 +1,193 @@
+"""Run a whole study: discover recordings, process each as an independent task (serially or
+in local worker processes), skip recordings whose outputs are up to date, then write the
+study tables and page. One failing recording never stops the others.
+"""
+from __future__ import annotations
+
+import json
+import logging
+import os
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from multiprocessing import get_context
+from pathlib import Path
+
+from .errors import HeschlError
+
+__all__ = ["run_study", "check_study", "process_and_write", "up_to_date"]
+
+log = logging.getLogger(__name__)
+
+
+def _limit_threads():
+    """One BLAS thread per worker: parallelism is over recordings."""
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ[var] = "1"
+    try:
+        from threadpoolctl import threadpool_limits
+
+        threadpool_limits(1)
+    except ImportError:  # pragma: no cover - threadpoolctl comes with scikit-learn
+        pass
+
+
+def up_to_date(study, recording):
+    """True when every output exists and provenance names the same input key."""
+    from .outputs import recording_paths
+    from .pipeline import definitions_of, input_hashes, input_key
+
+    paths = recording_paths(study.output, recording)
+    if not all(p.exists() for p in paths.values()):
+        return False
+    try:
+        old = json.loads(paths["provenance"].read_text(encoding="utf-8")).get("key")
+    except (OSError, ValueError):
+        return False
+    return old == input_key(input_hashes(recording), definitions_of(study, recording))
+
+
+def process_and_write(study, recording, force=False):
+    """One task: process a recording and write its outputs; returns a small summary.
+
+    Never raises for a problem with the recording: the error becomes part of the summary.
+    """
+    from .outputs import write_recording
+    from .pipeline import process_recording
+    from .report import render_recording
+
+    summary = {"site": recording.site, "participant_id": recording.participant_id,
+               "paradigm": recording.paradigm, "group": recording.group, "status": "done", "error": None}
+    try:
+        if not force and up_to_date(study, recording):
+            summary["status"] = "unchanged"
+            return summary
+        result = process_recording(study, recording)
+        design = next(a.paradigm.design for a in study.analyses if a.paradigm.name == recording.paradigm)
+        write_recording(study.output, recording, result, render_recording(recording, result, design))
+        summary["verdict"] = result["qc"]["verdict"]
+    except HeschlError as exc:
+        summary.update(status="failed", error=str(exc))
+    except Exception as exc:  # one recording never stops the study; the reason is kept
+        log.debug("unexpected failure", exc_info=True)
+        summary.update(status="failed", error=f"{recording.path.name}: {exc.__class__.__name__}: {exc}")
+    return summary
+
+
+def run_study(study, *, jobs=1, force=False):
+    """Process every recording of a study and write the study-level outputs.
+
+    Parameters
+    ----------
+    study : heschl.config.Study
+    jobs : int, default=1
+        Worker processes; -1 uses every core (scikit-learn's meaning of ``n_jobs``).
+    force : bool, default=False
+        Process recordings even when their outputs are up to date.
+
+    Returns
+    -------
+    summaries : list of dict
+        One per recording, with ``status`` "done", "unchanged" or "failed".
+    """
+    from .outputs import write_dataset_description
+    from .pipeline import discover
+
+    recordings = discover(study)
+    write_dataset_description(study.output, study.name)
+    jobs = os.cpu_count() if jobs == -1 else max(1, int(jobs))
+    log.info("Processing %d recordings with %d worker(s)", len(recordings), jobs)
+    if jobs == 1 or len(recordings) < 2:
+        summaries = [process_and_write(study, r, force) for r in recordings]
+    else:
+        summaries = [None] * len(recordings)
+        with ProcessPoolExecutor(max_workers=jobs, mp_context=get_context("spawn"),
+                                 initializer=_limit_threads) as pool:
+            futures = {pool.submit(process_and_write, study, r, force): i for i, r in enumerate(recordings)}
+            for future in as_completed(futures):
+                summaries[futures[future]] = future.result()
+    for s in summaries:
+        if s["status"] == "failed":
+            log.warning("failed: %s", s["error"])
+    write_group_outputs(study, recordings, summaries)
+    return summaries
+
+
+def write_group_outputs(study, recordings, summaries):
+    """Group feature table, QC table and study page, read back from the written files."""
+    import pandas as pd
+
+    from .outputs import recording_paths, write_group
+    from .report import render_study
+
+    tables, qc_rows = [], []
+    for recording, summary in zip(recordings, summaries):
+        if summary["status"] == "failed":
+            continue
+        paths = recording_paths(study.output, recording)
+        table = pd.read_csv(paths["features"], sep="\t", na_values=["n/a"], keep_default_na=False)
+        table.insert(0, "paradigm", recording.paradigm)
+        table.insert(0, "group", recording.group)
+        table.insert(0, "site", recording.site)
+        table.insert(0, "participant_id", recording.participant_id)
+        tables.append(table)
+        qc = json.loads(paths["qc"].read_text(encoding="utf-8"))
+        qc_rows.append({"participant_id": recording.participant_id, "site": recording.site,
+                        "group": recording.group, "paradigm": recording.paradigm, "verdict": qc["verdict"],
+                        "flags": " | ".join(f["message"] for f in qc["flags"]),
+                        "report": os.path.relpath(paths["report"], Path(study.output) / "group")})
+    table = pd.concat(tables, ignore_index=True) if tables else pd.DataFrame()
+    qc_table = pd.DataFrame(qc_rows)
+    failures = [s for s in summaries if s["status"] == "failed"]
+    write_group(study.output, table, qc_table, render_study(study.name, table, qc_table, failures))
+    return table, qc_table
+
+
+def check_study(study):
+    """What each recording holds, without processing: channels, duration, markers.
+
+    Returns
+    -------
+    rows : list of dict
+        One per recording; ``error`` is set when the recording cannot be used as defined.
+    """
+    from .pipeline import discover
+
+    return [_check_one(study, r) for r in discover(study)]
+
+
+def _check_one(study, recording):
+    from .harmonise import canonical_channel_names, extract_markers
+
+    import mne
+
+    site = study.sites[recording.site]
+    paradigm = next(a.paradigm for a in study.analyses if a.paradigm.name == recording.paradigm)
+    row = {"site": recording.site, "participant_id": recording.participant_id, "paradigm": recording.paradigm,
+           "file": os.path.relpath(recording.path), "error": None}
+    try:
+        raw = mne.io.read_raw(recording.path, preload=False, verbose="error")
+    except Exception as exc:  # the reader's own words, in one line
+        row["error"] = f"{row['file']}: cannot be read ({str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__})"
+        return row
+    mapping = canonical_channel_names(raw.ch_names, site.channel_aliases)
+    names = [mapping.get(n, n) for n in raw.ch_names]
+    if site.recording_reference not in ("average", "linked-mastoids", "unknown"):
+        names.append(site.recording_reference)
+    row["channels"] = len(raw.ch_names)
+    row["missing"] = [c for c in study.common_channels if c not in names]
+    row["duration_s"] = round(raw.n_times / raw.info["sfreq"], 2)
+    row["sampling_rate_hz"] = raw.info["sfreq"]
+    try:
+        markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, row["file"])
+    except HeschlError as exc:
+        row["error"] = str(exc)
+        return row
+    by_marker = {m: c.name for c in paradigm.conditions.values() for m in c.markers}
+    counts = {c: 0 for c in paradigm.conditions}
+    for label in markers.labels:
+        counts[by_marker[label]] += 1
+    row["conditions"] = counts
+    row["unmapped"] = markers.unknown
+    if row["missing"]:
+        row["error"] = (f"{row['file']}: lacks common channels {', '.join(row['missing'][:6])}; "
+                        "add channel_aliases for them or shorten common_channels.")
+    return row

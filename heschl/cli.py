@@ -1,0 +1,151 @@
+"""Command line: ``heschl demo``, ``heschl check``, ``heschl run``.
+
+Each command is a plain function ``run_<command>(...)`` returning data; :func:`main`
+wraps them with argparse and returns the exit code, so tests call it directly.
+"""
+from __future__ import annotations
+
+import argparse
+import logging
+import os
+import sys
+from pathlib import Path
+
+from . import __version__
+from .errors import DefinitionError, HeschlError
+
+__all__ = ["main", "run_demo", "run_check", "run_run"]
+
+log = logging.getLogger("heschl")
+
+EXIT_CODES = """exit codes:
+  0  everything asked for was done
+  1  one or more recordings failed or could not be checked (the others were processed)
+  2  the command line or a definition file (study, paradigm, feature set) is invalid"""
+
+
+def run_check(study_path):
+    """Validate the definitions and describe every recording; returns (study, rows)."""
+    from .batch import check_study
+    from .config import load_study
+
+    study = load_study(study_path)
+    return study, check_study(study)
+
+
+def run_run(study_path, jobs=1, force=False):
+    """Process a study; returns (study, summaries)."""
+    from .batch import run_study
+    from .config import load_study
+
+    study = load_study(study_path)
+    return study, run_study(study, jobs=jobs, force=force)
+
+
+def run_demo(folder, size="demo", jobs=None, force=False):
+    """Write the synthetic multi-site study to ``folder`` and process it; returns (study, summaries)."""
+    from .synth import make_study
+
+    folder = Path(folder)
+    study_file = folder / "study.toml"
+    if not study_file.exists():
+        log.info("Writing the synthetic study (%s size) to %s", size, folder)
+        study_file = make_study(folder, size=size)
+    jobs = jobs or min(2, os.cpu_count() or 1)
+    return run_run(study_file, jobs=jobs, force=force)
+
+
+def _print_check(rows):
+    failed = 0
+    for r in rows:
+        if r.get("conditions") is not None:
+            counts = ", ".join(f"{k} {v}" for k, v in r["conditions"].items())
+            missing = ", ".join(r["missing"]) or "none"
+            print(f"{r['site']:8s} {r['participant_id']:10s} {r['paradigm']:11s} {r['channels']:3d} ch "
+                  f"(missing: {missing}), {r['duration_s']:.1f} s at {r['sampling_rate_hz']:g} Hz; {counts}")
+        if r["error"]:
+            failed += 1
+            print(f"  problem: {r['error']}")
+    print(f"{len(rows)} recording(s) found, {failed} with problems.")
+    return 1 if failed or not rows else 0
+
+
+def _print_run(study, summaries):
+    done = sum(s["status"] == "done" for s in summaries)
+    same = sum(s["status"] == "unchanged" for s in summaries)
+    failed = [s for s in summaries if s["status"] == "failed"]
+    print(f"{len(summaries)} recording(s): {done} processed, {same} already up to date, {len(failed)} failed.")
+    for s in failed:
+        print(f"  failed: {s['error']}")
+    print(f"Outputs: {os.path.relpath(study.output)}")
+    print(f"Study page: {os.path.relpath(study.output / 'group' / 'report.html')}")
+    print(f"Recording pages: {os.path.relpath(study.output)}/sub-*/eeg/*_report.html")
+    return 1 if failed or not summaries else 0
+
+
+def _parser():
+    parser = argparse.ArgumentParser(
+        prog="heschl", description="Declarative multi-site processing of auditory EEG/MEG paradigms "
+        "into quality-checked, model-ready features. Research software, not a medical device.",
+        epilog=EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--version", action="version", version=f"heschl {__version__}")
+    parser.add_argument("-v", "--verbose", action="count", default=0, help="say more (-vv for debugging)")
+    parser.add_argument("-q", "--quiet", action="store_true", help="only errors")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    demo = sub.add_parser("demo", help="generate the synthetic multi-site study and process it",
+                          epilog=EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter)
+    demo.add_argument("folder", nargs="?", default="heschl-demo", help="where to write it (default: heschl-demo)")
+    demo.add_argument("--size", choices=("test", "demo"), default="demo", help="recording lengths (default: demo)")
+    demo.add_argument("--jobs", type=int, default=None, help="worker processes (default: 2; -1 for all cores)")
+    demo.add_argument("--force", action="store_true", help="reprocess recordings that are up to date")
+    check = sub.add_parser("check", help="validate a study and describe its recordings without processing",
+                           epilog=EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter)
+    check.add_argument("study", help="the study .toml file")
+    run = sub.add_parser("run", help="process every recording of a study",
+                         epilog=EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter)
+    run.add_argument("study", help="the study .toml file")
+    run.add_argument("--jobs", type=int, default=1, help="worker processes (default: 1; -1 for all cores)")
+    run.add_argument("--force", action="store_true", help="reprocess recordings that are up to date")
+    return parser
+
+
+def _logging(verbose, quiet):
+    """Handlers for heschl's own loggers only; libraries keep their defaults."""
+    level = logging.ERROR if quiet else (logging.INFO if verbose == 0 else logging.DEBUG)
+    handler = logging.StreamHandler()
+    handler.setFormatter(logging.Formatter("%(levelname)s %(message)s"))
+    log.handlers[:] = [handler]
+    log.setLevel(level)
+    log.propagate = False
+
+
+def main(argv=None):
+    """Entry point; returns the exit code."""
+    parser = _parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:
+        return int(exc.code or 0)
+    if args.command is None:
+        parser.print_help()
+        return 2
+    _logging(args.verbose, args.quiet)
+    try:
+        if args.command == "check":
+            _, rows = run_check(args.study)
+            return _print_check(rows)
+        if args.command == "run":
+            study, summaries = run_run(args.study, jobs=args.jobs, force=args.force)
+        else:
+            study, summaries = run_demo(args.folder, size=args.size, jobs=args.jobs, force=args.force)
+        return _print_run(study, summaries)
+    except DefinitionError as exc:
+        print(f"heschl: {exc}", file=sys.stderr)
+        return 2
+    except HeschlError as exc:
+        print(f"heschl: {exc}", file=sys.stderr)
+        return 1
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,62 @@
+"""Exceptions and the one sentence shape every user-facing error follows.
+
+Every message reads ``<where>: <key path>: <what is wrong>; <how to fix it>.`` so a
+person can act on a single line.
+"""
+from __future__ import annotations
+
+import difflib
+
+__all__ = [
+    "HeschlError",
+    "DefinitionError",
+    "InputDataError",
+    "ProcessingError",
+    "problem",
+    "did_you_mean",
+]
+
+
+class HeschlError(Exception):
+    """Base of every error heschl raises on purpose."""
+
+
+class DefinitionError(HeschlError, ValueError):
+    """A paradigm, feature-set or study file is invalid."""
+
+
+class InputDataError(HeschlError, ValueError):
+    """A recording cannot be read or does not match its definitions."""
+
+
+class ProcessingError(HeschlError, RuntimeError):
+    """A processing step could not produce a valid result."""
+
+
+def problem(where, what, fix, key=None):
+    """Build the one-line message: ``where: key: what; fix.``
+
+    Parameters
+    ----------
+    where : str or path-like
+        The file (or recording) the problem is in.
+    what : str
+        What is wrong, with the value received and its unit.
+    fix : str
+        How to fix it.
+    key : str or None, default=None
+        The key path inside the file, e.g. ``epochs.baseline``.
+    """
+    parts = [str(where)]
+    if key:
+        parts.append(str(key))
+    text = ": ".join(parts) + ": " + what.rstrip(". ")
+    if fix:
+        text += "; " + fix.rstrip(". ")
+    return " ".join((text + ".").split())
+
+
+def did_you_mean(word, choices):
+    """Return ``' (did you mean "x"?)'`` for the closest choice, or ``''``."""
+    close = difflib.get_close_matches(str(word), [str(c) for c in choices], n=1, cutoff=0.6)
+    return f' (did you mean "{close[0]}"?)' if close else ""

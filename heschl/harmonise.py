@@ -1,0 +1,263 @@
+"""Read a recording and bring it to the study's common form.
+
+Channel names (site aliases, old 10-20 names, letter case), channel types, electrode
+positions, markers (site code maps, trigger-delay correction), the recording reference
+channel, the common channel set and the sampling rate. Every change is recorded in a
+plain ``dict`` that ends up in ``qc.json`` and ``provenance.json``.
+"""
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputDataError, problem
+
+__all__ = ["OLD_NAMES", "Markers", "read_raw", "standard_montage", "standard_name_map",
+           "canonical_channel_names", "extract_markers", "harmonise"]
+
+log = logging.getLogger(__name__)
+
+# Old 10-20 labels renamed in the 10-10 nomenclature (ACNS Guideline 2, 2016; same positions).
+OLD_NAMES = {"T3": "T7", "T4": "T8", "T5": "P7", "T6": "P8"}
+_EOG_WORDS = ("EOG", "HEOG", "VEOG", "LEOG", "REOG")
+_READERS = {".vhdr": "BrainVision", ".edf": "EDF", ".bdf": "BDF", ".fif": "FIF", ".set": "EEGLAB",
+            ".gz": "FIF"}
+
+
+@dataclass
+class Markers:
+    """Marker onsets in seconds from the first sample, already corrected for trigger delay."""
+
+    onsets: np.ndarray                    # shape (n,), s
+    labels: list                          # marker labels of the paradigm
+    unknown: dict = field(default_factory=dict)   # code in file -> count, codes the site map lacks
+
+
+def read_raw(path):
+    """Read any supported recording with mne's readers, preloaded, read-only.
+
+    Parameters
+    ----------
+    path : path-like
+        .vhdr, .edf, .bdf, .fif or .set file.
+
+    Returns
+    -------
+    raw : mne.io.BaseRaw
+    """
+    import mne
+
+    path = Path(path)
+    suffix = path.suffix.lower()
+    if suffix not in _READERS:
+        raise InputDataError(problem(path, f'file type "{suffix}" is not supported',
+                                     f"convert it to one of: {', '.join(sorted(set(_READERS) - {'.gz'}))}"))
+    if not path.is_file():
+        raise InputDataError(problem(path, "file not found", "check the site's file pattern in the study file"))
+    try:
+        return mne.io.read_raw(path, preload=True, verbose="error")
+    except Exception as exc:  # readers raise many kinds; the user needs one line
+        text = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
+        raise InputDataError(problem(path, f"cannot be read as {_READERS[suffix]} ({text})",
+                                     "check that the file is complete and of the type its name says")) from None
+
+
+def standard_montage():
+    """mne's template 10-05 montage (colin27 positions; older mne calls it standard_1005)."""
+    import mne
+
+    try:
+        return mne.channels.make_standard_montage("colin27_1005")
+    except ValueError:  # mne < 1.13
+        return mne.channels.make_standard_montage("standard_1005")
+
+
+def standard_name_map():
+    """Map upper-case label -> correctly cased 10-05 label, old 10-20 names resolved."""
+    names = {n.upper(): n for n in standard_montage().ch_names}
+    for old, new in OLD_NAMES.items():
+        names[old.upper()] = new
+    return names
+
+
+def canonical_channel_names(names, aliases=None, standard=None):
+    """Rename channels to 10-10/10-05 spelling.
+
+    Order: the site's own aliases, then the built-in old 10-20 names, then letter case,
+    after stripping an "EEG " prefix. Names that match nothing are kept as they are.
+
+    Returns
+    -------
+    mapping : dict
+        Old name -> new name, only for names that change.
+    """
+    standard = standard_name_map() if standard is None else standard
+    aliases = aliases or {}
+    mapping = {}
+    for name in names:
+        new = aliases.get(name)
+        if new is None:
+            bare = name.strip()
+            if bare.upper().startswith("EEG "):
+                bare = bare[4:].strip()
+            new = standard.get(bare.upper(), bare)
+        if new != name:
+            mapping[name] = new
+    return mapping
+
+
+def extract_markers(raw, code_map, delay, where):
+    """Markers of the paradigm found in ``raw``, in seconds from its first sample.
+
+    Parameters
+    ----------
+    raw : mne.io.BaseRaw
+    code_map : dict
+        Code as found in the file (annotation text or stimulus value as text) -> marker label.
+    delay : float, s
+        How late the site's markers are; subtracted from every onset.
+    where : str
+        The file, for messages.
+    """
+    import mne
+
+    codes, onsets = [], []
+    if len(raw.annotations):
+        ids = {str(d): i + 1 for i, d in enumerate(sorted(set(raw.annotations.description)))}
+        events, _ = mne.events_from_annotations(raw, event_id=ids, verbose="error")
+        names = {v: k for k, v in ids.items()}
+        codes = [names[int(c)] for c in events[:, 2]]
+        onsets = list((events[:, 0] - raw.first_samp) / raw.info["sfreq"])
+    stim = [raw.ch_names[i] for i in mne.pick_types(raw.info, stim=True)]
+    if stim and not codes:
+        events = mne.find_events(raw, stim_channel=stim[0], shortest_event=1, initial_event=True,
+                                 consecutive=True, verbose="error")
+        codes = [str(int(c)) for c in events[:, 2]]
+        onsets = list((events[:, 0] - raw.first_samp) / raw.info["sfreq"])
+    unknown, keep_on, keep_lab = {}, [], []
+    for code, onset in zip(codes, onsets):
+        if code in code_map:
+            keep_on.append(onset - delay)
+            keep_lab.append(code_map[code])
+        else:
+            unknown[code] = unknown.get(code, 0) + 1
+    if not keep_lab:
+        found = ", ".join(sorted(unknown)[:8]) or "none"
+        raise InputDataError(problem(where, f"no marker of the paradigm found (codes in the file: {found})",
+                                     "map the site's codes to the paradigm's markers under "
+                                     "[sites.<site>.markers.<paradigm>] in the study file"))
+    order = np.argsort(keep_on, kind="stable")
+    return Markers(np.asarray(keep_on)[order], [keep_lab[i] for i in order], unknown)
+
+
+def harmonise(raw, site, paradigm, common_channels, where):
+    """Names, types, montage, reference channel, channel set and rate, in that order.
+
+    Parameters
+    ----------
+    raw : mne.io.BaseRaw
+        Preloaded; changed in place (it is this task's own copy).
+    site : heschl.config.Site
+    paradigm : heschl.config.Paradigm
+    common_channels : sequence of str
+        The study's channel set; empty keeps every EEG channel.
+    where : str
+        The file, for messages.
+
+    Returns
+    -------
+    raw : mne.io.BaseRaw
+    record : dict
+        What was found and changed.
+    """
+    record = {"file_sampling_rate": float(raw.info["sfreq"]), "file_channels": list(raw.ch_names),
+              "duration_s": float(raw.n_times / raw.info["sfreq"])}
+    markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where)
+    record["trigger_delay_s"] = site.trigger_delay
+    renamed = canonical_channel_names(raw.ch_names, site.channel_aliases)
+    _check_unique(raw.ch_names, renamed, where)
+    raw.rename_channels(renamed)
+    record["renamed"] = renamed
+    record["eog_channels"] = _set_types(raw, site)
+    record["restored_reference"] = _restore_reference(raw, site)
+    record["missing_channels"] = _pick_common(raw, common_channels, where)
+    _set_montage(raw, where)
+    target = paradigm.cleaning.sampling_rate
+    if abs(raw.info["sfreq"] - target) > 1e-9:
+        if raw.info["sfreq"] < target:
+            raise InputDataError(problem(where, f"sampled at {raw.info['sfreq']:g} Hz, below the paradigm's "
+                                         f"{target:g} Hz", "lower cleaning.sampling_rate in the paradigm"))
+        raw.resample(target, npad="auto", verbose="error")
+    record["sampling_rate"] = float(raw.info["sfreq"])
+    record["channels"] = [raw.ch_names[i] for i in _eeg_picks(raw)]
+    return raw, markers, record
+
+
+def _check_unique(names, mapping, where):
+    new = [mapping.get(n, n) for n in names]
+    dup = sorted({n for n in new if new.count(n) > 1})
+    if dup:
+        raise InputDataError(problem(where, f"channels {', '.join(dup)} appear twice after renaming",
+                                     "fix the site's channel_aliases in the study file"))
+
+
+def _set_types(raw, site):
+    eog = [n for n in raw.ch_names if n in site.eog_channels or n.upper() in _EOG_WORDS]
+    if eog:
+        raw.set_channel_types({n: "eog" for n in eog}, verbose="error")
+    return eog
+
+
+def _restore_reference(raw, site):
+    """Add the recording reference channel back (all zeros) when it is a named channel."""
+    import mne
+
+    ref = site.recording_reference
+    if ref in ("average", "linked-mastoids", "unknown"):
+        return None
+    name = standard_name_map().get(ref.upper(), ref)
+    if name in raw.ch_names:
+        return None
+    mne.add_reference_channels(raw, name, copy=False)
+    return name
+
+
+def _pick_common(raw, common, where):
+    import mne
+
+    eeg = [raw.ch_names[i] for i in mne.pick_types(raw.info, eeg=True, meg=False)]
+    if not common:
+        keep = eeg
+        missing = []
+    else:
+        missing = [c for c in common if c not in eeg]
+        if missing:
+            raise InputDataError(problem(where, f"lacks {len(missing)} of the study's common channels "
+                                         f"({', '.join(missing[:6])})",
+                                         "add channel_aliases for them or shorten common_channels"))
+        keep = list(common)
+    other = [n for n in raw.ch_names if n in set(
+        raw.ch_names[i] for i in mne.pick_types(raw.info, eeg=False, eog=True, meg=True))]
+    raw.pick(keep + [n for n in other if n not in keep], verbose="error")
+    raw.reorder_channels(keep + [n for n in raw.ch_names if n not in keep])
+    return missing
+
+
+def _set_montage(raw, where):
+    montage = standard_montage()
+    known = set(montage.ch_names)
+    eeg = [raw.ch_names[i] for i in _eeg_picks(raw)]
+    unknown = [n for n in eeg if n not in known]
+    if unknown:
+        raise InputDataError(problem(where, f"no standard position for channels {', '.join(unknown[:6])}",
+                                     "map them to 10-05 names with channel_aliases in the study file"))
+    raw.set_montage(montage, on_missing="ignore", verbose="error")
+
+
+def _eeg_picks(raw):
+    import mne
+
+    return mne.pick_types(raw.info, eeg=True, meg=False)

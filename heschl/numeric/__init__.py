@@ -1,0 +1,49 @@
+"""Plain numpy/scipy measures on arrays: phase coherence, spectra, ERP measures, rejection.
+
+Nothing here knows about configuration, the CLI, reports or mne objects; every function
+takes arrays in SI units (V, s, Hz) and documents shapes.
+"""
+from heschl.numeric.erp import POLARITIES, Peak, mean_amplitude, peak, region_mean
+from heschl.numeric.phase import (
+    evoked_power,
+    induced_power,
+    itpc,
+    itpc_critical,
+    morlet_transform,
+    morlet_wavelet,
+    pairwise_phase_consistency,
+    rayleigh,
+    total_power,
+)
+from heschl.numeric.rejection import fixed_threshold, peak_to_peak
+from heschl.numeric.spectra import (
+    CLOSURES,
+    band_power,
+    relative_band_power,
+    snr_neighbours,
+    welch_psd,
+)
+
+__all__ = [
+    "morlet_wavelet",
+    "morlet_transform",
+    "itpc",
+    "evoked_power",
+    "total_power",
+    "induced_power",
+    "pairwise_phase_consistency",
+    "rayleigh",
+    "itpc_critical",
+    "welch_psd",
+    "band_power",
+    "relative_band_power",
+    "snr_neighbours",
+    "CLOSURES",
+    "mean_amplitude",
+    "peak",
+    "Peak",
+    "region_mean",
+    "POLARITIES",
+    "peak_to_peak",
+    "fixed_threshold",
+]

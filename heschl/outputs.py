@@ -1,0 +1,130 @@
+"""Write results in a BIDS-derivatives layout, every file through a temporary name.
+
+A crash never leaves a half-written file that looks complete: each file is written to
+``.<name>.tmp-<pid>`` beside its target and renamed into place.
+"""
+from __future__ import annotations
+
+import json
+import math
+import os
+from pathlib import Path
+
+from . import __version__
+
+__all__ = ["write_atomic", "recording_paths", "write_recording", "write_dataset_description",
+           "write_group", "FEATURE_COLUMNS", "FEATURE_SIDECAR"]
+
+FEATURE_COLUMNS = ["feature", "value", "unit", "kind", "signal", "region", "window", "n_trials",
+                   "feature_set", "flags"]
+FEATURE_SIDECAR = {
+    "feature": {"Description": "Name of the measure, from the feature set."},
+    "value": {"Description": "The measured value, in the unit of the row. NaN when it could not be computed."},
+    "unit": {"Description": "Unit of value: uV (microvolt), ms, uV^2 (integrated power), 1 (dimensionless)."},
+    "kind": {"Description": "Measure kind: mean-amplitude, peak-amplitude, peak-latency, itpc, "
+                            "evoked-power, band-power, relative-band-power, band-ratio."},
+    "signal": {"Description": "Condition or contrast (difference wave) the measure reads; numerator/denominator for ratios."},
+    "region": {"Description": "Named channel region of the feature set; values are averaged over its channels."},
+    "window": {"Description": "Time window (s after the marker) and frequency, or band name."},
+    "n_trials": {"Description": "Kept trials (epochs or segments) the value rests on; the smaller count for contrasts."},
+    "feature_set": {"Description": "Feature set that defines the measure."},
+    "flags": {"Description": "Why the value should not be used as it is (e.g. trials below the paradigm minimum); empty when none."},
+}
+
+
+def write_atomic(path, data):
+    """Write text or bytes to ``path`` through a temporary file and a rename."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}")
+    mode = "wb" if isinstance(data, bytes) else "w"
+    with open(tmp, mode, **({} if mode == "wb" else {"encoding": "utf-8", "newline": "\n"})) as fh:
+        fh.write(data)
+        fh.flush()
+        os.fsync(fh.fileno())
+    os.replace(tmp, path)
+    return path
+
+
+def _json(obj):
+    return json.dumps(obj, indent=2, sort_keys=False, default=_default, allow_nan=False) + "\n"
+
+
+def _default(value):
+    import numpy as np
+
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (np.floating,)):
+        return None if not math.isfinite(value) else float(value)
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    if isinstance(value, Path):
+        return str(value)
+    raise TypeError(f"cannot write {type(value).__name__} to JSON")
+
+
+def _finite(obj):
+    """Replace NaN/inf by None so the JSON is standard."""
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    if isinstance(obj, dict):
+        return {k: _finite(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_finite(v) for v in obj]
+    return obj
+
+
+def recording_paths(output, recording):
+    """Paths of one recording's outputs."""
+    folder = Path(output) / recording.participant_id / "eeg"
+    stem = recording.stem
+    return {
+        "features": folder / f"{stem}_features.tsv",
+        "features_json": folder / f"{stem}_features.json",
+        "qc": folder / f"{stem}_qc.json",
+        "provenance": folder / f"{stem}_provenance.json",
+        "report": folder / f"{stem}_report.html",
+    }
+
+
+def features_tsv(rows):
+    """The tidy features table as TSV text."""
+    import pandas as pd
+
+    table = pd.DataFrame(rows, columns=FEATURE_COLUMNS)
+    return table.to_csv(sep="\t", index=False, na_rep="n/a", float_format="%.6g", lineterminator="\n")
+
+
+def write_recording(output, recording, result, report_html):
+    """Write features (+ sidecar), QC, provenance and the page; provenance goes last.
+
+    Provenance is the marker of a complete recording: resuming trusts a recording only
+    when its provenance exists and names the same input key.
+    """
+    paths = recording_paths(output, recording)
+    write_atomic(paths["features"], features_tsv(result["rows"]))
+    write_atomic(paths["features_json"], _json(FEATURE_SIDECAR))
+    write_atomic(paths["qc"], _json(_finite(result["qc"])))
+    write_atomic(paths["report"], report_html)
+    write_atomic(paths["provenance"], _json(_finite(result["provenance"])))
+    return paths
+
+
+def write_dataset_description(output, study_name):
+    """BIDS derivatives ``dataset_description.json``."""
+    desc = {"Name": f"heschl derivatives: {study_name}", "BIDSVersion": "1.9.0", "DatasetType": "derivative",
+            "GeneratedBy": [{"Name": "heschl", "Version": __version__,
+                             "Description": "Declarative multi-site processing of auditory EEG/MEG paradigms."}]}
+    return write_atomic(Path(output) / "dataset_description.json", _json(desc))
+
+
+def write_group(output, table, qc_table, report_html=None):
+    """Study-level tables (and page) under ``<output>/group``."""
+    folder = Path(output) / "group"
+    write_atomic(folder / "features.tsv", table.to_csv(sep="\t", index=False, na_rep="n/a",
+                                                       float_format="%.6g", lineterminator="\n"))
+    write_atomic(folder / "qc.tsv", qc_table.to_csv(sep="\t", index=False, na_rep="n/a", lineterminator="\n"))
+    if report_html is not None:
+        write_atomic(folder / "report.html", report_html)
+    return folder

@@ -1,0 +1,367 @@
+"""One recording from file to features: read, harmonise, clean, segment, reject, measure.
+
+:func:`process_recording` is a pure task: its outputs are determined by the input bytes,
+the definitions and the package version, which is what makes resuming and parallel runs
+simple. It returns plain data; :mod:`heschl.outputs` writes it.
+"""
+from __future__ import annotations
+
+import glob
+import hashlib
+import logging
+import re
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from . import __version__
+from .errors import InputDataError, problem
+
+__all__ = ["Recording", "discover", "recording_files", "process_recording", "input_key"]
+
+log = logging.getLogger(__name__)
+
+
+@dataclass(frozen=True)
+class Recording:
+    """One file set of one participant in one paradigm at one site."""
+
+    site: str
+    paradigm: str
+    participant_id: str          # "sub-<label>"
+    group: str
+    path: Path
+
+    @property
+    def label(self):
+        return self.participant_id[4:]
+
+    @property
+    def stem(self):
+        return f"{self.participant_id}_task-{self.paradigm}"
+
+
+def read_participants(path):
+    """participant_id -> group, from a tab-separated participants table."""
+    if path is None:
+        return {}
+    import pandas as pd
+
+    table = pd.read_csv(path, sep="\t", dtype=str)
+    if "participant_id" not in table.columns:
+        raise InputDataError(problem(path, "has no participant_id column",
+                                     "add a participant_id column (and a group column)"))
+    groups = table["group"] if "group" in table.columns else ["n/a"] * len(table)
+    return dict(zip(table["participant_id"], groups))
+
+
+def discover(study):
+    """Every recording the study's file patterns find, in a stable order."""
+    groups = read_participants(study.participants)
+    found = []
+    for site in study.sites.values():
+        pattern = re.compile(site.subject_pattern)
+        for analysis in study.analyses:
+            pname = analysis.paradigm.name
+            if pname not in site.files:
+                continue
+            for name in sorted(glob.glob(str(study.root / site.files[pname]))):
+                path = Path(name)
+                match = pattern.search(path.name)
+                if match is None:
+                    raise InputDataError(problem(path, f'the subject pattern "{site.subject_pattern}" finds no id',
+                                                 f"rename the file or set sites.{site.name}.subject_pattern"))
+                pid = f"sub-{match.group(1)}"
+                found.append(Recording(site.name, pname, pid, groups.get(pid, "n/a"), path))
+    return found
+
+
+def recording_files(path):
+    """The main file and its companions (BrainVision header, markers and data; EEGLAB .fdt)."""
+    path = Path(path)
+    files = [path]
+    if path.suffix.lower() == ".vhdr":
+        text = path.read_text(encoding="latin-1", errors="replace")
+        for key in ("DataFile", "MarkerFile"):
+            m = re.search(rf"^{key}=(.+)$", text, flags=re.M)
+            if m:
+                files.append(path.parent / m.group(1).strip())
+    elif path.suffix.lower() == ".set" and path.with_suffix(".fdt").exists():
+        files.append(path.with_suffix(".fdt"))
+    return files
+
+
+def _sha256(path):
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+def input_hashes(recording):
+    """sha256 of every input file of a recording, keyed by file name."""
+    out = {}
+    for f in recording_files(recording.path):
+        if not f.exists():
+            raise InputDataError(problem(f, "companion file not found",
+                                         f"put it beside {recording.path.name} as its header names it"))
+        out[f.name] = _sha256(f)
+    return out
+
+
+def input_key(hashes, definitions):
+    """One hash of everything that determines a recording's outputs."""
+    import json
+
+    text = json.dumps({"inputs": hashes, "definitions": definitions, "heschl": __version__}, sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def definitions_of(study, recording):
+    """The resolved definitions one recording is processed with (for provenance and the key)."""
+    analysis = next(a for a in study.analyses if a.paradigm.name == recording.paradigm)
+    site = study.sites[recording.site]
+    return {
+        "paradigm": analysis.paradigm.document,
+        "feature_sets": {fs.name: fs.document for fs in analysis.feature_sets},
+        "site": {k: _plain(v) for k, v in vars(site).items()},
+        "common_channels": list(study.common_channels),
+    }
+
+
+def _plain(value):
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    return value
+
+
+class _Clock:
+    def __init__(self):
+        self.times, self._t = {}, time.perf_counter()
+
+    def lap(self, name):
+        now = time.perf_counter()
+        self.times[name] = round(now - self._t, 3)
+        self._t = now
+
+
+def process_recording(study, recording):
+    """Run every stage for one recording.
+
+    Returns
+    -------
+    result : dict
+        ``rows`` (feature rows), ``qc``, ``provenance`` and ``curves`` (arrays the QC page
+        plots), all plain data.
+    """
+    from .clean import clean
+    from .harmonise import harmonise, read_raw
+
+    analysis = next(a for a in study.analyses if a.paradigm.name == recording.paradigm)
+    paradigm, site = analysis.paradigm, study.sites[recording.site]
+    where = _display(recording.path)
+    clock = _Clock()
+    hashes = input_hashes(recording)
+    raw = read_raw(recording.path)
+    clock.lap("read")
+    raw, markers, harmonised = harmonise(raw, site, paradigm, study.common_channels, where)
+    clock.lap("harmonise")
+    cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where)
+    clock.lap("clean")
+    trials_data, times, entries, ch_names = _trials(raw, markers, paradigm)
+    clock.lap("segment and reject")
+    source = _source(trials_data, times, ch_names, raw.info["sfreq"], paradigm)
+    rows = []
+    for fs in analysis.feature_sets:
+        rows.extend(_features(fs, source, paradigm))
+    curves = _curves(analysis, source)
+    clock.lap("features")
+    counts = _counts(entries, paradigm)
+    qc = _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm)
+    definitions = definitions_of(study, recording)
+    provenance = {
+        "recording": {"site": recording.site, "participant_id": recording.participant_id,
+                      "group": recording.group, "paradigm": recording.paradigm, "file": where},
+        "inputs_sha256": hashes,
+        "key": input_key(hashes, definitions),
+        "definitions": definitions,
+        "steps": {"harmonise": harmonised, "clean": cleaning,
+                  "rejection": {"method": paradigm.rejection.method,
+                                "peak_to_peak_uv": _uv(paradigm.rejection.peak_to_peak),
+                                "trials": counts},
+                  "trial_log": entries},
+        "versions": package_versions(),
+        "timings_s": clock.times,
+    }
+    return {"rows": rows, "qc": qc, "provenance": provenance, "curves": curves}
+
+
+def _uv(value):
+    return None if value is None else round(value * 1e6, 6)
+
+
+def _display(path):
+    import os
+
+    try:
+        return os.path.relpath(path)
+    except ValueError:  # pragma: no cover
+        return str(path)
+
+
+def _trials(raw, markers, paradigm):
+    from .segment import cut, epoch_plan, reject, segment_plan
+
+    import mne
+
+    ch_names = [raw.ch_names[i] for i in mne.pick_types(raw.info, eeg=True, meg=False)]
+    if paradigm.epochs is not None:
+        plan = epoch_plan(markers, paradigm)
+        window, baseline = paradigm.epochs.window, paradigm.epochs.baseline
+    else:
+        duration = raw.n_times / raw.info["sfreq"]
+        plan = segment_plan(markers, paradigm, duration)
+        window, baseline = (0.0, paradigm.segments.length - 1.0 / raw.info["sfreq"]), None
+    x, times, entries = cut(raw, plan, window)
+    data, entries = reject(x, times, entries, ch_names, paradigm, baseline)
+    return data, times, entries, ch_names
+
+
+def _source(data, times, ch_names, sfreq, paradigm):
+    from .features import Source
+
+    return Source(data, times, ch_names, sfreq, paradigm)
+
+
+def _features(feature_set, source, paradigm):
+    from .features import compute_features
+
+    return compute_features(feature_set, source, paradigm.rejection.min_trials)
+
+
+def _counts(entries, paradigm):
+    counts = {c: {"planned": 0, "kept": 0, "dropped": 0, "reasons": {},
+                  "minimum": paradigm.rejection.min_trials.get(c, 0)} for c in paradigm.conditions}
+    for entry in entries:
+        c = counts[entry["condition"]]
+        c["planned"] += 1
+        if entry["kept"]:
+            c["kept"] += 1
+        else:
+            c["dropped"] += 1
+            key = entry["reason"].split(":")[0]
+            c["reasons"][key] = c["reasons"].get(key, 0) + 1
+    return counts
+
+
+def _curves(analysis, source):
+    """Arrays for the QC page's figures, computed once here (the page never recomputes)."""
+    paradigm = analysis.paradigm
+    regions = {}
+    for fs in analysis.feature_sets:
+        regions.update(fs.regions)
+    curves = {"times": source.times.tolist(), "regions": {}}
+    region = next(iter(regions), None)
+    if region is None:
+        return curves
+    picks = [source.ch_names.index(c) for c in regions[region] if c in source.ch_names]
+    curves["region"] = region
+    windows = {m.params["window"] for fs in analysis.feature_sets for m in fs.measures if m.params.get("window")}
+    curves["windows"] = sorted(windows)
+    if paradigm.design == "event-related":
+        curves["waves_uv"] = {s: (source.average(s)[picks].mean(axis=0) * 1e6).tolist()
+                              for s in paradigm.signals if source.n_trials(s) > 0}
+    elif paradigm.design == "steady-state":
+        from .numeric.phase import itpc
+
+        freq = paradigm.stimulation.get("frequency", 40.0)
+        curves["frequency"] = freq
+        curves["itpc"] = {c: itpc(source.coefficients(c, freq)[:, picks, :], axis=0).mean(axis=0).tolist()
+                          for c in paradigm.conditions if source.n_trials(c) > 1}
+    else:
+        spec = next((fs.spectrum for fs in analysis.feature_sets), {"segment": 2.0, "overlap": 0.5})
+        curves["psd_uv2_per_hz"] = {}
+        for c in paradigm.conditions:
+            if source.n_trials(c) > 0:
+                freqs, psd = source.spectrum(c, spec)
+                curves["freqs"] = freqs.tolist()
+                curves["psd_uv2_per_hz"][c] = (psd[picks].mean(axis=0) * 1e12).tolist()
+    return curves
+
+
+FLAG_LEVELS = ("note", "caution", "unusable")
+
+
+def _flag(level, code, message):
+    return {"level": level, "code": code, "message": message}
+
+
+def _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm):
+    flags = []
+    for c, n in counts.items():
+        if n["kept"] < n["minimum"]:
+            reasons = ", ".join(f"{k} {v}" for k, v in n["reasons"].items()) or "none dropped"
+            flags.append(_flag("unusable", "too-few-trials",
+                               f"{c}: {n['kept']} trials kept, below the minimum {n['minimum']} "
+                               f"({n['planned']} planned; dropped: {reasons})"))
+        elif n["planned"] and n["dropped"] / n["planned"] > 0.3:
+            flags.append(_flag("caution", "many-dropped", f"{c}: {n['dropped']} of {n['planned']} trials dropped"))
+    bads = cleaning["bad_channels"]
+    if bads:
+        flags.append(_flag("note", "channels-interpolated",
+                           f"{len(bads)} channel(s) interpolated: " + ", ".join(sorted(bads))))
+    if markers.unknown:
+        flags.append(_flag("note", "unmapped-markers", "codes in the file not used by this paradigm: "
+                           + ", ".join(f"{k} ({v})" for k, v in sorted(markers.unknown.items()))))
+    if harmonised["file_sampling_rate"] < 200:
+        # REFERENCES F27: digital EEG guidelines ask for at least 200 Hz.
+        flags.append(_flag("caution", "low-sampling-rate",
+                           f"recorded at {harmonised['file_sampling_rate']:g} Hz, below 200 Hz"))
+    if any(not np.isfinite(r["value"]) for r in rows):
+        flags.append(_flag("unusable", "missing-features", "some features could not be computed"))
+    worst = max((FLAG_LEVELS.index(f["level"]) for f in flags), default=-1)
+    return {
+        "participant_id": recording.participant_id, "site": recording.site, "group": recording.group,
+        "paradigm": recording.paradigm,
+        "verdict": "clear" if worst < 0 else FLAG_LEVELS[worst],
+        "flags": flags,
+        "channels": {"file": harmonised["file_channels"], "renamed": harmonised["renamed"],
+                     "restored_reference": harmonised["restored_reference"],
+                     "eog": harmonised["eog_channels"], "analysed": harmonised["channels"],
+                     "bad": bads, "interpolated": cleaning["interpolated"]},
+        "markers": {"counts": _marker_counts(markers), "unmapped": markers.unknown,
+                    "trigger_delay_s": harmonised["trigger_delay_s"]},
+        "trials": counts,
+        "sampling_rate_hz": {"file": harmonised["file_sampling_rate"], "analysis": harmonised["sampling_rate"]},
+        "duration_s": harmonised["duration_s"],
+        "filter": cleaning["filter"],
+        "reference": cleaning["reference"],
+    }
+
+
+def _marker_counts(markers):
+    out = {}
+    for label in markers.labels:
+        out[label] = out.get(label, 0) + 1
+    return out
+
+
+def package_versions():
+    """Versions of heschl and the libraries whose numbers shape the outputs."""
+    from importlib import metadata
+
+    out = {"heschl": __version__}
+    for name in ("mne", "numpy", "scipy", "autoreject", "pandas", "jinja2", "matplotlib"):
+        try:
+            out[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            out[name] = None
+    import sys
+
+    out["python"] = sys.version.split()[0]
+    return out

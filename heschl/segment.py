@@ -1,0 +1,113 @@
+"""Cut cleaned data into epochs (event-related, steady-state) or segments (resting), then
+reject by the paradigm's policy. Every trial carries its fate and the reason.
+"""
+from __future__ import annotations
+
+import logging
+import numpy as np
+
+from .numeric.rejection import fixed_threshold, peak_to_peak
+
+__all__ = ["epoch_plan", "segment_plan", "cut", "reject"]
+
+log = logging.getLogger(__name__)
+
+
+def epoch_plan(markers, paradigm):
+    """Trials planned from markers: (onset_s, condition, reason-or-None) per marker.
+
+    Skip rules of the paradigm (e.g. the standard after a deviant) mark trials as skipped.
+    """
+    by_marker = {m: c.name for c in paradigm.conditions.values() for m in c.markers}
+    conds = [by_marker[label] for label in markers.labels]
+    plan = []
+    for i, (onset, cond) in enumerate(zip(markers.onsets, conds)):
+        reason = None
+        for rule in paradigm.epochs.skip:
+            if cond == rule.condition and i > 0 and conds[i - 1] == rule.after:
+                reason = f"skipped: follows a {rule.after}"
+        plan.append((float(onset), cond, reason))
+    return plan
+
+
+def segment_plan(markers, paradigm, duration):
+    """Fixed-length segments inside each block, from its marker to the next or the end."""
+    by_marker = {m: c.name for c in paradigm.conditions.values() for m in c.markers}
+    spec = paradigm.segments
+    step = spec.length * (1.0 - spec.overlap)
+    ends = list(markers.onsets[1:]) + [duration]
+    plan = []
+    for onset, label, end in zip(markers.onsets, markers.labels, ends):
+        start = onset + spec.skip_start
+        n = int(np.floor((end - start - spec.length) / step + 1e-9)) + 1
+        plan.extend((float(start + k * step), by_marker[label], None) for k in range(max(n, 0)))
+    return plan
+
+
+def cut(raw, plan, window):
+    """Cut trials from continuous data.
+
+    Parameters
+    ----------
+    raw : mne.io.BaseRaw
+        Cleaned data; EEG channels are cut.
+    plan : list of (onset_s, condition, reason or None)
+    window : (tmin, tmax), s
+
+    Returns
+    -------
+    x : ndarray, shape (n_cut, n_channels, n_times), V
+    times : ndarray, s
+    entries : list of dict
+        The log, one entry per planned trial, with ``index`` into ``x`` for cut trials.
+    """
+    import mne
+
+    picks = mne.pick_types(raw.info, eeg=True, meg=False)
+    data = raw.get_data(picks=picks)
+    sfreq = raw.info["sfreq"]
+    start = int(round(window[0] * sfreq))
+    n_times = int(round((window[1] - window[0]) * sfreq)) + 1
+    times = (start + np.arange(n_times)) / sfreq
+    pieces, entries = [], []
+    for onset, cond, reason in plan:
+        first = int(round(onset * sfreq)) + start
+        entry = {"condition": cond, "onset_s": round(onset, 4), "kept": False, "reason": reason}
+        if reason is None and (first < 0 or first + n_times > data.shape[1]):
+            entry["reason"] = "outside the recording: window reaches past the data"
+        if entry["reason"] is None:
+            entry["index"] = len(pieces)
+            pieces.append(data[:, first:first + n_times])
+        entries.append(entry)
+    x = np.stack(pieces) if pieces else np.empty((0, len(picks), n_times))
+    return x, times, entries
+
+
+def reject(x, times, entries, ch_names, paradigm, baseline=None):
+    """Baseline-correct, apply the rejection policy, and split kept trials by condition.
+
+    Returns
+    -------
+    arrays : dict of str -> ndarray, shape (n_kept, n_channels, n_times), V
+    entries : list of dict
+        The log with each trial's fate filled in.
+    """
+    if baseline is not None and len(x):
+        sel = (times >= baseline[0]) & (times <= baseline[1])
+        x = x - x[:, :, sel].mean(axis=2, keepdims=True)
+    keep = np.ones(len(x), dtype=bool)
+    reasons = [None] * len(x)
+    if paradigm.rejection.method == "fixed" and len(x):
+        keep, reasons = fixed_threshold(peak_to_peak(x), paradigm.rejection.peak_to_peak, ch_names)
+    data = {c: [] for c in paradigm.conditions}
+    for entry in entries:
+        idx = entry.get("index")
+        if idx is None:
+            continue
+        if keep[idx]:
+            entry["kept"] = True
+            data[entry["condition"]].append(x[idx])
+        else:
+            entry["reason"] = f"peak-to-peak: {reasons[idx]}"
+    arrays = {c: (np.stack(v) if v else np.empty((0,) + x.shape[1:])) for c, v in data.items()}
+    return arrays, entries

@@ -240,8 +240,9 @@ class _Section:
         if value is default and default is not _REQUIRED:
             return value
         if (not isinstance(value, list) or len(value) != 2
-                or any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in value)):
-            self.fail(key, f"expected two numbers [start, stop]{_in(unit)}, got {_show(value)}",
+                or any(isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v)
+                       for v in value)):
+            self.fail(key, f"expected two finite numbers [start, stop]{_in(unit)}, got {_show(value)}",
                       "write it as [start, stop]")
         start, stop = float(value[0]), float(value[1])
         if not start < stop:
@@ -266,6 +267,8 @@ class _Section:
         return tuple(value)
 
     def table(self, key, default=_REQUIRED):
+        if key not in self.data and default is _REQUIRED:
+            self.fail(key, "missing required table", f"add a [{self.key(key)}] table")
         value = self.raw(key, default)
         if value is default and default is not _REQUIRED:
             return value
@@ -357,7 +360,8 @@ def resolve_definition(name, kind, base, where, key):
     if candidate.is_file():
         return candidate
     names = builtin_names(kind)
-    raise DefinitionError(problem(where, f'no built-in {kind[:-1]} named "{text}"{did_you_mean(text, names)}',
+    label = {"features": "feature set"}.get(kind, kind[:-1])
+    raise DefinitionError(problem(where, f'no built-in {label} named "{text}"{did_you_mean(text, names)}',
                                   f"use one of: {', '.join(names)}, or a path ending in .toml", key=key))
 
 
@@ -462,8 +466,11 @@ def _timing(top, design, conditions):
     if baseline is not None and (baseline[0] < window[0] or baseline[1] > window[1]):
         section.fail("baseline", f"[{_num(baseline[0])}, {_num(baseline[1])}] s is not inside the epoch "
                      f"window [{_num(window[0])}, {_num(window[1])}] s", "choose a baseline inside the window")
-    skip = []
-    for i, rule in enumerate(section.raw("skip", default=[])):
+    skip, rules = [], section.raw("skip", default=[])
+    if not isinstance(rules, list):
+        section.fail("skip", f"expected a list of tables, got {_show(rules)}",
+                     'write it as skip = [{ condition = "a", after = "b" }]')
+    for i, rule in enumerate(rules):
         rule_section = _Section(rule, section.where, f"{section.key('skip')}[{i}]", {"condition", "after"})
         skip.append(SkipRule(rule_section.string("condition", choices=list(conditions)),
                              rule_section.string("after", choices=list(conditions))))
@@ -522,7 +529,7 @@ def load_feature_set(path, paradigm):
     spectrum = top.sub("spectrum", {"segment", "overlap"}, default={})
     spec = {"segment": spectrum.number("segment", default=2.0, unit="s", low=0.0, strict_low=True),
             "overlap": spectrum.number("overlap", default=0.5, low=0.0, high=0.95)}
-    raw_measures = top.raw("measures")
+    raw_measures = top.raw("measures", default=None)
     if not isinstance(raw_measures, list) or not raw_measures:
         top.fail("measures", "expected at least one [[measures]] entry", "add a [[measures]] table")
     measures, names = [], set()
@@ -556,7 +563,10 @@ def _expand_measure(section, paradigm, regions, bands, spec):
         fixed["frequency"] = _measure_frequency(section, paradigm)
     if "polarity" in required:
         fixed["polarity"] = section.string("polarity", choices=POLARITIES)
-    fixed["region"] = section.string("region", choices=list(regions) or ["(define [regions] first)"])
+    region = fixed["region"] = section.string("region")
+    if region not in regions:
+        section.fail("region", f'"{region}" is not defined under [regions]{did_you_mean(region, regions)}',
+                     f"define it under [regions] or use one of: {', '.join(regions) or 'none yet'}")
     for key in ("numerator", "denominator"):
         if key in required:
             fixed[key] = section.string(key, choices=list(paradigm.conditions))
@@ -599,7 +609,12 @@ def _check_design(section, kind, paradigm):
 
 def _measure_window(section, paradigm):
     lo, hi = paradigm.epochs.window
-    return section.pair("window", unit="s", low=lo, high=hi)
+    start, stop = section.pair("window", unit="s")
+    if start < lo or stop > hi:
+        section.fail("window", f"[{_num(start)}, {_num(stop)}] s is not inside the epoch window "
+                     f"[{_num(lo)}, {_num(hi)}] s of paradigm \"{paradigm.name}\"",
+                     "choose a window inside it or widen the paradigm's epochs.window")
+    return (start, stop)
 
 
 def _measure_frequency(section, paradigm):
@@ -647,7 +662,7 @@ def load_study(path):
 
 
 def _analyses(top, root):
-    items = top.raw("analyses")
+    items = top.raw("analyses", default=None)
     if not isinstance(items, list) or not items:
         top.fail("analyses", "expected at least one [[analyses]] entry",
                  'add [[analyses]] with paradigm = "..." and feature_sets = [...]')
@@ -681,6 +696,11 @@ def _site(section, name, paradigms):
     if line not in (50.0, 60.0):
         section.fail("line_frequency", f"{_num(line)} Hz is not a mains frequency", "use 50 or 60")
     delay = section.number("trigger_delay_ms", default=0.0, unit="ms", low=-1000.0, high=1000.0) / 1000.0
+    for pname in section.table("files"):
+        if pname not in paradigms:
+            section.fail(f"files.{pname}", f'paradigm "{pname}" is not in [[analyses]]'
+                         f"{did_you_mean(pname, paradigms)}",
+                         f'add [[analyses]] with paradigm = "{pname}", or remove the pattern')
     files_section = section.sub("files", set(paradigms))
     files = {p: files_section.string(p) for p in files_section.data}
     if not files:

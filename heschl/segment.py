@@ -108,6 +108,6 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None):
             entry["kept"] = True
             data[entry["condition"]].append(x[idx])
         else:
-            entry["reason"] = f"peak-to-peak: {reasons[idx]}"
+            entry["reason"] = "peak-to-peak: " + "; ".join(r.replace("peak-to-peak ", "", 1) for r in reasons[idx])
     arrays = {c: (np.stack(v) if v else np.empty((0,) + x.shape[1:])) for c, v in data.items()}
     return arrays, entries

@@ -99,11 +99,22 @@ def test_frequencies_outside_nyquist_range_are_refused(freqs):
         morlet_transform(np.zeros(1000), 250.0, freqs)
 
 
-def test_bad_sfreq_and_cycles_are_refused():
-    with pytest.raises(DefinitionError, match="sfreq = -250.0 Hz is not a positive number"):
-        morlet_transform(np.zeros(1000), -250.0, [10.0])
-    with pytest.raises(DefinitionError, match="n_cycles"):
-        morlet_transform(np.zeros(1000), 250.0, [10.0], n_cycles=0)
+@pytest.mark.parametrize(("call", "error", "pattern"), [
+    (lambda: morlet_transform(np.zeros(1000), -250.0, [10.0]), DefinitionError,
+     r"sfreq: sfreq = -250.0 Hz is not a positive number"),
+    (lambda: morlet_transform(np.zeros(1000), 250.0, [10.0], n_cycles=0), DefinitionError,
+     r"n_cycles = 0 must be positive"),
+    (lambda: morlet_transform(np.zeros(1000), 250.0, [10.0, 20.0], n_cycles=[3, 4, 5]),
+     DefinitionError, r"one per frequency \(2\)"),
+    (lambda: morlet_transform(np.zeros(1000), 250.0, []), DefinitionError,
+     r"freqs has shape \(0,\)"),
+    (lambda: morlet_transform(np.float64(1.0), 250.0, [10.0]), InputDataError,
+     r"x has shape \(\); pass signals with time on the last axis"),
+    (lambda: morlet_wavelet(250.0, [10.0, 20.0]), DefinitionError, r"freq has 2 values"),
+])
+def test_bad_transform_arguments_are_refused(call, error, pattern):
+    with pytest.raises(error, match=pattern):
+        call()
 
 
 # -- ITPC ------------------------------------------------------------------------------
@@ -313,6 +324,8 @@ def test_itpc_critical_false_positive_rate(rng, n):
     assert np.mean(r > itpc_critical(n, 0.05)) == pytest.approx(0.05, rel=0.2)
 
 
-def test_itpc_critical_refuses_bad_alpha():
+def test_itpc_critical_refuses_bad_alpha_and_n():
     with pytest.raises(DefinitionError, match=r"alpha = 1.5 is outside \(0, 1\)"):
         itpc_critical(20, alpha=1.5)
+    with pytest.raises(DefinitionError, match=r"n = 0.0 is below 1"):
+        itpc_critical(0)

@@ -85,6 +85,7 @@ def test_segment_longer_than_data_is_refused():
     ({"segment": 0.001}, r"segment = 0.001 s is 0 samples"),
     ({"segment": 1.0, "overlap": 1.0}, r"overlap = 1.0 is outside \[0, 1\)"),
     ({"segment": 1.0, "sfreq": 0.0}, r"sfreq = 0.0 Hz is not positive"),
+    ({"segment": 1.0, "window": "hanning"}, r"window = 'hanning' is not a known window"),
 ])
 def test_bad_welch_parameters_are_refused(kwargs, pattern):
     kwargs = {"sfreq": 250.0, **kwargs}
@@ -230,3 +231,5 @@ def test_bad_snr_arguments_are_refused(kwargs, pattern):
     freqs = np.arange(201) * 0.5
     with pytest.raises(DefinitionError, match=pattern):
         snr_neighbours(freqs, np.ones(201), **kwargs)
+    with pytest.raises(InputDataError, match=r"power has shape \(200,\) but freqs has 201"):
+        snr_neighbours(freqs, np.ones(200), 40.0)

@@ -54,12 +54,14 @@ def _frequency_grid(freqs, n_cycles, sfreq, where):
             where, f"frequencies {bad.tolist()} Hz lie outside (0, {nyquist:g}) Hz, "
             f"the open range below the Nyquist frequency at sfreq = {sfreq:g} Hz",
             "choose frequencies between 0 Hz and half the sampling rate", key="freqs"))
-    cycles = np.broadcast_to(np.asarray(n_cycles, dtype=float), freqs.shape).copy()
-    if not np.all(np.isfinite(cycles) & (cycles > 0)):
+    cycles = np.asarray(n_cycles, dtype=float)
+    if cycles.size not in (1, freqs.size) or cycles.ndim > 1 or not np.all(
+            np.isfinite(cycles) & (cycles > 0)):
         raise DefinitionError(problem(
             where, f"n_cycles = {np.asarray(n_cycles).tolist()} must be positive",
-            "pass one positive number of cycles, or one per frequency", key="n_cycles"))
-    return freqs, cycles
+            f"pass one positive number of cycles, or one per frequency ({freqs.size})",
+            key="n_cycles"))
+    return freqs, np.broadcast_to(cycles, freqs.shape)
 
 
 def morlet_wavelet(sfreq, freq, n_cycles=7.0):

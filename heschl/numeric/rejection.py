@@ -14,6 +14,9 @@ __all__ = ["peak_to_peak", "fixed_threshold"]
 
 logger = logging.getLogger(__name__)
 
+#: Limits above this many volts (10 mV) are taken for a unit mistake (uV passed as V).
+MAX_PLAUSIBLE_LIMIT = 1e-2
+
 
 def peak_to_peak(x):
     """Peak-to-peak amplitude (max - min over time) per epoch and channel.
@@ -54,6 +57,11 @@ def _limits(limit, n_channels):
             "fixed_threshold", f"limit = {limits.tolist()} V is not one positive value or "
             f"one per channel ({n_channels})",
             "pass the peak-to-peak limit in V, e.g. 100e-6", key="limit"))
+    if np.any(limits > MAX_PLAUSIBLE_LIMIT):
+        raise DefinitionError(problem(
+            "fixed_threshold", f"limit = {limits.max():g} V is above "
+            f"{MAX_PLAUSIBLE_LIMIT:g} V and looks like a value in uV",
+            "pass the limit in V, e.g. 100e-6 for 100 uV", key="limit"))
     return np.broadcast_to(limits, (n_channels,))
 
 

@@ -68,7 +68,13 @@ def welch_psd(x, sfreq, segment, overlap=0.5, window="hann"):
         raise DefinitionError(problem(where, f"overlap = {overlap} is outside [0, 1)",
                                       "pass a fraction such as 0.5", key="overlap"))
     noverlap = int(round(float(overlap) * nperseg))
-    return scipy.signal.welch(x, fs=sfreq, window=window, nperseg=nperseg,
+    try:
+        taper = scipy.signal.get_window(window, nperseg)
+    except ValueError as err:
+        raise DefinitionError(problem(where, f"window = {window!r} is not a known window "
+                                      f"({err})", 'use e.g. "hann", "hamming" or "boxcar"',
+                                      key="window")) from None
+    return scipy.signal.welch(x, fs=sfreq, window=taper, nperseg=nperseg,
                               noverlap=min(noverlap, nperseg - 1), detrend="constant",
                               scaling="density", average="mean", axis=-1)
 

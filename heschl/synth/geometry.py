@@ -16,6 +16,8 @@ from .sites import CHANNELS_64, COMMON_CHANNELS
 
 __all__ = [
     "POINTS",
+    "standard_montage",
+    "channel_positions",
     "EOG_POINTS",
     "point_positions",
     "auditory_topography",
@@ -44,8 +46,14 @@ _EOG_POSITIONS = {
 _MASTOID_FALLBACK_DROP = 0.02  # m below TP9/TP10 when a montage lacks M1/M2
 
 
-def _standard_montage():
-    """Return mne's 10-05 template montage without letting a deprecation escape."""
+def standard_montage():
+    """Return mne's 10-05 template montage without letting a deprecation escape.
+
+    Returns
+    -------
+    mne.channels.DigMontage
+        ``colin27_1005`` where mne offers it (mne >= 1.13), else ``standard_1005``.
+    """
     import mne
 
     for name in ("colin27_1005", "standard_1005"):
@@ -68,7 +76,7 @@ def point_positions():
         Positions in metres, rows in the order of :data:`POINTS`. M1/M2 come from the
         template montage, or 2 cm below TP9/TP10 if it has none.
     """
-    ch_pos = _standard_montage().get_positions()["ch_pos"]
+    ch_pos = standard_montage().get_positions()["ch_pos"]
     rows = []
     for name in POINTS:
         if name in _EOG_POSITIONS:

@@ -1,0 +1,382 @@
+"""Write recordings and whole synthetic studies, with their ground truth.
+
+A recording is generated in four steps: the subject's brain (reference-free potentials at
+1000 Hz), scalp-level artefacts, the site's own reference and channel faults, then the
+site's sampling rate, rail and file format. Random numbers come from streams keyed by
+(seed, subject, group, paradigm, purpose), never by site: the same subject written by two
+sites has the same brain, the same artefacts and the same stimulus schedule.
+"""
+from __future__ import annotations
+
+import datetime
+import json
+import logging
+import re
+import zlib
+from fractions import Fraction
+from pathlib import Path
+
+import numpy as np
+import scipy.signal
+
+from . import artefacts as art
+from . import geometry
+from .brain import SFREQ, background_patterns, draw_subject_params, expected_values
+from .brain import scalp_potentials
+from .events import make_schedule
+from .sites import (
+    COMMON_CHANNELS, GROUPS, PARADIGMS, SITE_SPECS, SITES, SIZES,
+)
+from .writers import write_brainvision, write_edf, write_fif
+
+__all__ = ["make_study", "write_recording", "SUBJECTS_PER_GROUP", "study_toml_text"]
+
+logger = logging.getLogger(__name__)
+
+#: Subjects per group and site for each size.
+SUBJECTS_PER_GROUP = {"test": 1, "demo": 2, "bench": 1}
+
+#: The one recording whose deviants are mostly spoiled: Birch's first comparison
+#: subject, oddball.
+LOW_COUNT = {"site": "birch", "paradigm": "oddball", "group": "comparison"}
+
+_STIM_PULSE_SAMPLES = 5
+_START = datetime.datetime(2026, 12, 1, 9, 0, 0)
+STUDY_NAME = "Alder-Birch-Cedar auditory study (synthetic)"
+
+
+def _stream(seed, *keys):
+    """Random generator for one purpose, from the study seed and text keys."""
+    entropy = [int(seed)] + [zlib.crc32(str(key).encode("utf-8")) for key in keys]
+    return np.random.default_rng(np.random.SeedSequence(entropy))
+
+
+def _subject_number(subject):
+    """Number in a subject id (``"B03"`` gives 3), 0 if there is none."""
+    digits = re.sub(r"\D", "", subject)
+    return int(digits) if digits else 0
+
+
+def _is_low_count(site, paradigm, group, subject, size):
+    """Whether this recording is the study's low-count recording."""
+    first_comparison = SUBJECTS_PER_GROUP[size] + 1
+    return (site, paradigm, group) == tuple(LOW_COUNT.values()) and (
+        _subject_number(subject) == first_comparison)
+
+
+def _check_choice(name, value, allowed):
+    """Raise ValueError naming the argument, the value and what is allowed."""
+    if value not in allowed:
+        raise ValueError(f"heschl.synth: {name}: {value!r} is not known; "
+                         f"choose one of {', '.join(map(repr, allowed))}.")
+
+
+def _rows(names):
+    """Row indices of points in the generator's point list."""
+    return [geometry.POINTS.index(name) for name in names]
+
+
+def _reference(scalp, spec):
+    """Apply the site's recording reference; return stored rows and their names.
+
+    Returns
+    -------
+    data : ndarray, shape (n_stored, n_times)
+        EEG (then EOG at Cedar), V.
+    names : list of str
+        Names as the site writes them.
+    """
+    eeg = scalp[_rows(spec.channels)]
+    if spec.reference == "average":
+        eeg = eeg - eeg.mean(axis=0)
+    elif spec.reference == "linked-mastoids":
+        eeg = eeg - scalp[_rows(["M1", "M2"])].mean(axis=0)
+    else:
+        eeg = eeg - scalp[geometry.POINTS.index(spec.reference)]
+    names = spec.file_channel_names()
+    if not spec.eog:
+        return eeg, names
+    sup, inf, left, right = scalp[_rows(geometry.EOG_POINTS)]
+    eog = {"HEOG": right - left, "VEOG": sup - inf}
+    return np.vstack([eeg] + [eog[name][None] for name in spec.eog]), names + list(spec.eog)
+
+
+def _resample(data, sfreq_out):
+    """Resample from the generator's rate to the site's rate (polyphase, zero phase)."""
+    ratio = Fraction(sfreq_out / SFREQ).limit_denominator(10_000)
+    if ratio == 1:
+        return data
+    return scipy.signal.resample_poly(data, ratio.numerator, ratio.denominator,
+                                      axis=1, padtype="line")
+
+
+def _scalp_artefacts(scalp, schedule, keys, seed, low_count):
+    """Add scalp-level artefacts in place and return their truth."""
+    truth = {
+        "blinks_s": art.add_blinks(scalp, _stream(seed, "blinks", *keys), schedule, SFREQ),
+        "muscle_s": art.add_muscle(scalp, _stream(seed, "muscle", *keys),
+                                   schedule.duration, SFREQ),
+        "spoiled_deviants_s": [],
+    }
+    art.add_drift(scalp, _stream(seed, "drift", *keys), SFREQ)
+    if low_count:
+        truth["spoiled_deviants_s"] = art.add_low_count_transients(
+            scalp, _stream(seed, "low-count", *keys), schedule.onsets["deviant"], SFREQ)
+    return truth
+
+
+def _bad_channels(data, names, spec, rng, common_channels):
+    """Choose the recording's bad channels and corrupt them in place; return truth."""
+    chosen = art.choose_bad_channels(rng, common_channels)
+    for bad in chosen:
+        row = list(spec.channels).index(bad["standard_name"])
+        data[row] = art.corrupt_channel(data[row], bad["kind"], rng, SFREQ)
+        bad["channel"] = names[row]
+    return [{"channel": b["channel"], "standard_name": b["standard_name"],
+             "kind": b["kind"]} for b in chosen]
+
+
+def _write_files(folder, spec, subject, paradigm, data, names, schedule):
+    """Write the stored signals in the site's format; return the file names."""
+    stem = f"sub-{subject}_task-{paradigm}"
+    codes = spec.markers[paradigm]
+    start = _START + datetime.timedelta(days=_subject_number(subject),
+                                        minutes=20 * PARADIGMS.index(paradigm))
+    onsets = [(t + spec.trigger_delay_s, codes[c]) for t, c in schedule.all_onsets()]
+    if spec.file_format == "brainvision":
+        markers = [(t, "Stimulus", code) for t, code in onsets]
+        return write_brainvision(folder, f"{stem}_eeg", data, names, spec.sfreq,
+                                 reference=spec.reference, markers=markers, start=start)
+    if spec.file_format == "edf":
+        return write_edf(folder / f"{stem}_eeg.edf", data, names, spec.sfreq,
+                         annotations=onsets, patient=f"sub-{subject}", start=start,
+                         rail=art.RAIL_V)
+    stim = np.zeros(data.shape[1])
+    for time, code in onsets:
+        first = int(round(time * spec.sfreq))
+        stim[first:first + _STIM_PULSE_SAMPLES] = code
+    types = ["eeg"] * len(spec.channels) + ["eog"] * len(spec.eog)
+    return write_fif(folder / f"{stem}_raw.fif", data, names, types, spec.sfreq,
+                     stim=stim, line_freq=spec.line_frequency, start=start,
+                     subject=f"sub-{subject}")
+
+
+def _check_arguments(site, paradigm, group, size, seed):
+    """Validate write_recording's choices."""
+    _check_choice("site", site, SITES)
+    _check_choice("paradigm", paradigm, PARADIGMS)
+    _check_choice("group", group, GROUPS)
+    _check_choice("size", size, SIZES)
+    if int(seed) < 0:
+        raise ValueError(f"heschl.synth: seed: {seed} is negative; use a whole number "
+                         "of 0 or more.")
+
+
+def write_recording(folder, *, site, paradigm, subject, group, seed, size="demo",
+                    artefacts=True, common_channels=None):
+    """Write one recording as ``site`` stores it, and return its ground truth.
+
+    The brain, the stimulus schedule and the scalp-level artefacts depend on
+    ``(seed, subject, group, paradigm, size)`` only, so writing the same subject as two
+    sites gives two files of one brain. The mains frequency, the reference, the
+    channels, the rate and the format are the site's. With ``artefacts=True`` and
+    ``(site, paradigm, group) == ("birch", "oddball", "comparison")`` the first
+    comparison subject of the size (``B02`` for test and bench, ``B03`` for demo) is
+    the low-count recording: all but 18 deviants carry a large transient.
+
+    Parameters
+    ----------
+    folder : path-like
+        Folder to write into; created if missing.
+    site : {"alder", "birch", "cedar"}
+        How the file is stored.
+    paradigm : {"oddball", "clicktrain", "rest"}
+        What was recorded.
+    subject : str
+        Subject id, with or without ``sub-`` (``"A01"`` and ``"sub-A01"`` are the same).
+    group : {"control", "comparison"}
+        The subject's group; sets the group effects.
+    seed : int
+        Study seed (0 or more).
+    size : {"test", "demo", "bench"}, default="demo"
+        Recording length class.
+    artefacts : bool, default=True
+        Add blinks, muscle, drift, bad channels, a saturation (and the low-count
+        transients); line noise is always present.
+    common_channels : sequence of str, optional
+        The study's common channels (default :data:`COMMON_CHANNELS`): bad channels are
+        drawn from them and the expected values use their average reference.
+
+    Returns
+    -------
+    dict
+        The truth record; ``files`` are names relative to ``folder``.
+    """
+    _check_arguments(site, paradigm, group, size, seed)
+    spec = SITE_SPECS[site]
+    subject = str(subject).removeprefix("sub-")
+    common = tuple(common_channels or COMMON_CHANNELS)
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    keys = (subject, group, paradigm, size)
+
+    params = draw_subject_params(_stream(seed, "subject", subject, group), group)
+    patterns = background_patterns(_stream(seed, "patterns", subject, group))
+    schedule = make_schedule(_stream(seed, "events", *keys), paradigm, size)
+    scalp = scalp_potentials(schedule, params, patterns, _stream(seed, "noise", *keys),
+                             _stream(seed, "trials", *keys))
+    low_count = artefacts and _is_low_count(site, paradigm, group, subject, size)
+    truth = {"blinks_s": [], "muscle_s": [], "spoiled_deviants_s": []}
+    if artefacts:
+        truth = _scalp_artefacts(scalp, schedule, keys, seed, low_count)
+    scalp += art.line_noise(_stream(seed, "line", *keys), scalp.shape[0], scalp.shape[1],
+                            SFREQ, spec.line_frequency)
+
+    data, names = _reference(scalp, spec)
+    del scalp
+    bad = []
+    if artefacts:
+        bad = _bad_channels(data, names, spec, _stream(seed, "bad", *keys), common)
+    data = _resample(data, spec.sfreq)
+    saturation = (art.draw_saturation(_stream(seed, "saturation", *keys),
+                                      schedule.duration) if artefacts else None)
+    art.apply_saturation(data, saturation, spec.sfreq)
+    files = _write_files(folder, spec, subject, paradigm, data, names, schedule)
+    logger.info("Wrote %s %s sub-%s (%d channels, %d s).", site, paradigm, subject,
+                len(names), schedule.duration)
+    return _truth_record(spec, subject, group, schedule, files, names, params, truth,
+                         bad, saturation, low_count, common)
+
+
+def _truth_record(spec, subject, group, schedule, files, names, params, truth, bad,
+                  saturation, low_count, common):
+    """Assemble the JSON-ready truth of one recording."""
+    paradigm = schedule.paradigm
+    channel_names = list(names) + (["STI 014"] if spec.file_format == "fif" else [])
+    return {
+        "site": spec.name,
+        "participant_id": f"sub-{subject}",
+        "group": group,
+        "paradigm": paradigm,
+        "files": files,
+        "sfreq": spec.sfreq,
+        "duration_s": schedule.duration,
+        "channel_names_in_file": channel_names,
+        "recording_reference": spec.reference,
+        "line_frequency": spec.line_frequency,
+        "trigger_delay_ms": round(spec.trigger_delay_s * 1e3, 3),
+        "marker_codes": dict(spec.markers[paradigm]),
+        "events_s": {c: [round(float(t), 3) for t in times]
+                     for c, times in schedule.onsets.items()},
+        "bad_channels": bad,
+        "blinks_s": truth["blinks_s"],
+        "muscle_s": truth["muscle_s"],
+        "saturation_s": [saturation] if saturation else [],
+        "low_count_condition": "deviant" if low_count else None,
+        "spoiled_deviants_s": truth["spoiled_deviants_s"],
+        "params": params,
+        "expected": expected_values(paradigm, params, common),
+    }
+
+
+def _subjects(site, size):
+    """``(subject id, group)`` of one site: controls first, then comparisons."""
+    n = SUBJECTS_PER_GROUP[size]
+    letter = SITE_SPECS[site].letter
+    return [(f"{letter}{g * n + k + 1:02d}", group)
+            for g, group in enumerate(GROUPS) for k in range(n)]
+
+
+def _toml_list(values):
+    """TOML inline array of strings."""
+    return "[" + ", ".join(json.dumps(v) for v in values) + "]"
+
+
+def _site_toml(site):
+    """The ``[sites.<site>]`` tables of the study file."""
+    spec = SITE_SPECS[site]
+    lines = [f"[sites.{site}]",
+             f"recording_reference = {json.dumps(spec.reference)}",
+             f"line_frequency = {spec.line_frequency:.1f}",
+             f"trigger_delay_ms = {spec.trigger_delay_s * 1e3:.1f}"]
+    if spec.eog:
+        lines.append(f"eog_channels = {_toml_list(spec.eog)}")
+    lines.append(f"[sites.{site}.files]")
+    for paradigm in PARADIGMS:
+        name = spec.file_names("*", paradigm)[0]
+        lines.append(f'{paradigm} = "raw/{site}/sub-*/{name}"')
+    for paradigm in PARADIGMS:
+        lines.append(f"[sites.{site}.markers.{paradigm}]")
+        for condition, code in spec.markers[paradigm].items():
+            text = f"Stimulus/{code}" if spec.file_format == "brainvision" else str(code)
+            lines.append(f"{json.dumps(text)} = {json.dumps(condition)}")
+    return "\n".join(lines) + "\n"
+
+
+def study_toml_text(common_channels=COMMON_CHANNELS):
+    """Return the text of the synthetic study's ``study.toml``.
+
+    Parameters
+    ----------
+    common_channels : sequence of str, default=COMMON_CHANNELS
+        The study's common channels.
+
+    Returns
+    -------
+    str
+    """
+    head = [f"name = {json.dumps(STUDY_NAME)}",
+            'output = "derivatives/heschl"',
+            'participants = "participants.tsv"',
+            f"common_channels = {_toml_list(common_channels)}", ""]
+    for paradigm in PARADIGMS:
+        head += ["[[analyses]]", f"paradigm = {json.dumps(paradigm)}",
+                 f"feature_sets = {_toml_list([paradigm + '-core'])}", ""]
+    return "\n".join(head) + "\n" + "\n".join(_site_toml(site) for site in SITES)
+
+
+def make_study(root, *, size="demo", seed=20261201, artefacts=True):
+    """Write the whole synthetic three-site study under ``root``.
+
+    Writes ``raw/<site>/sub-<id>/...`` for every site, subject and paradigm, then
+    ``participants.tsv``, ``truth.json`` and ``study.toml`` (paths relative to it).
+
+    Parameters
+    ----------
+    root : path-like
+        Study folder; created if missing, existing files of the same names replaced.
+    size : {"test", "demo", "bench"}, default="demo"
+        Subjects per group and site (1, 2, 1) and recording lengths.
+    seed : int, default=20261201
+        Study seed; every random number derives from it.
+    artefacts : bool, default=True
+        Inject artefacts (see :func:`write_recording`).
+
+    Returns
+    -------
+    pathlib.Path
+        Path of ``study.toml``.
+    """
+    _check_choice("size", size, SIZES)
+    root = Path(root)
+    recordings, participants = [], []
+    for site in SITES:
+        for subject, group in _subjects(site, size):
+            participants.append((f"sub-{subject}", site, group))
+            relative = Path("raw", site, f"sub-{subject}")
+            for paradigm in PARADIGMS:
+                record = write_recording(root / relative, site=site, paradigm=paradigm,
+                                         subject=subject, group=group, seed=seed,
+                                         size=size, artefacts=artefacts)
+                record["files"] = [(relative / name).as_posix() for name in record["files"]]
+                recordings.append(record)
+    rows = ["participant_id\tsite\tgroup"] + ["\t".join(p) for p in participants]
+    (root / "participants.tsv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    truth = {"seed": int(seed), "size": size, "common_channels": list(COMMON_CHANNELS),
+             "recordings": recordings}
+    (root / "truth.json").write_text(json.dumps(truth, indent=1) + "\n", encoding="utf-8")
+    study = root / "study.toml"
+    study.write_text(study_toml_text(), encoding="utf-8")
+    logger.info("Wrote a %s study of %d recordings under %s.", size, len(recordings), root)
+    return study
+

@@ -17,7 +17,10 @@ log = logging.getLogger(__name__)
 
 
 class BadChannelDetector:
-    """Flag flat, noisy and poorly correlated EEG channels with robust statistics.
+    """Flag flat, noisy and unpredictable EEG channels with robust statistics.
+
+    Flat channels are found on the data as recorded; noisy and unpredictable ones on a
+    median-referenced copy, so a bad channel cannot hide behind (or spoil) the reference.
 
     Parameters
     ----------
@@ -26,67 +29,105 @@ class BadChannelDetector:
         is flat.
     noisy_z : float, default=4.0
         Robust z-score (median/MAD over channels) of log robust amplitude above which a
-        channel is noisy; common practice uses robust z thresholds of 3-5.
-    min_correlation : float, default=0.4
-        A channel whose 95th-percentile correlation with the other channels falls below
-        this is poorly correlated.
+        channel is noisy; robust z limits of 3-5 are common practice.
+    noisy_ratio : float, default=2.0
+        A noisy channel must also be this many times the median channel's robust
+        amplitude, so that a tight spread over channels cannot flag ordinary ones.
+    min_correlation : float, default=0.6
+        Correlation, in 1 s windows, between a channel and its least-squares prediction
+        from all other channels below which a window counts as unpredictable.
+    max_unpredictable : float, default=0.2
+        A channel unpredictable in more than this fraction of windows is bad (pops, loose
+        contact); the idea of predicting a channel from the others follows RANSAC-style
+        detection (Jas et al. 2017, autoreject).
+    window : float, default=1.0
+        Window length, s.
 
     Attributes
     ----------
     amplitude_ : ndarray, shape (n_channels,), V
-        Robust amplitude (1.4826 * median absolute deviation) of each channel.
-    correlation_ : ndarray, shape (n_channels,)
+        Robust amplitude (1.4826 * median absolute deviation) as recorded.
+    unpredictable_ : ndarray, shape (n_channels,)
+        Fraction of windows below ``min_correlation``.
     bads_ : dict
         Channel name -> reason, for every flagged channel.
     """
 
-    def __init__(self, *, flat_ratio=0.1, noisy_z=4.0, min_correlation=0.4):
+    def __init__(self, *, flat_ratio=0.1, noisy_z=4.0, noisy_ratio=2.0, min_correlation=0.6, max_unpredictable=0.2,
+                 window=1.0):
         self.flat_ratio = flat_ratio
         self.noisy_z = noisy_z
+        self.noisy_ratio = noisy_ratio
         self.min_correlation = min_correlation
+        self.max_unpredictable = max_unpredictable
+        self.window = window
 
-    def fit(self, x, ch_names):
+    def fit(self, x, ch_names, sfreq, exclude=()):
         """Learn which channels are bad.
 
         Parameters
         ----------
         x : ndarray, shape (n_channels, n_times), V
-            Band-passed continuous data.
+            Band-passed continuous data, as referenced at recording.
         ch_names : list of str
+        sfreq : float, Hz
+        exclude : sequence of str
+            Channels not judged flat (a restored recording reference is zero by design).
         """
         x = np.asarray(x, dtype=float)
-        med = np.median(x, axis=1, keepdims=True)
-        amp = 1.4826 * np.median(np.abs(x - med), axis=1)
-        self.amplitude_ = amp
-        typical = np.median(amp)
         bads = {}
-        for name, a in zip(ch_names, amp):
-            if a < self.flat_ratio * typical:
-                bads[name] = f"flat: robust amplitude {a * 1e6:.2f} uV < {self.flat_ratio:g} x median {typical * 1e6:.2f} uV"
+        self.amplitude_ = _robust_amplitude(x)
+        typical = np.median(self.amplitude_)
+        for name, a in zip(ch_names, self.amplitude_):
+            if name not in exclude and a < self.flat_ratio * typical:
+                bads[name] = (f"flat: robust amplitude {a * 1e6:.2f} uV < {self.flat_ratio:g} x median "
+                              f"{typical * 1e6:.2f} uV")
+        y = x - np.median(x, axis=0, keepdims=True)
+        amp = _robust_amplitude(y)
         live = np.array([n not in bads for n in ch_names])
         log_amp = np.log(np.maximum(amp, 1e-15))
         centre = np.median(log_amp[live])
         spread = 1.4826 * np.median(np.abs(log_amp[live] - centre)) or 1e-12
-        z = (log_amp - centre) / spread
-        for name, zi, a in zip(ch_names, z, amp):
-            if name not in bads and zi > self.noisy_z:
-                bads[name] = f"noisy: robust amplitude {a * 1e6:.1f} uV, robust z {zi:.1f} > {self.noisy_z:g}"
-        self.correlation_ = _neighbour_correlation(x, live)
-        for name, c in zip(ch_names, self.correlation_):
-            if name not in bads and c < self.min_correlation:
-                bads[name] = f"poorly correlated: 95th-percentile correlation {c:.2f} < {self.min_correlation:g}"
+        median = np.exp(centre)
+        for name, a, z in zip(ch_names, amp, (log_amp - centre) / spread):
+            if name not in bads and z > self.noisy_z and a > self.noisy_ratio * median:
+                bads[name] = (f"noisy: robust amplitude {a * 1e6:.1f} uV, {a / median:.1f} x median "
+                              f"{median * 1e6:.1f} uV, robust z {z:.1f} > {self.noisy_z:g}")
+        self.unpredictable_ = _unpredictable(y, live, int(round(self.window * sfreq)), self.min_correlation)
+        for name, frac in zip(ch_names, self.unpredictable_):
+            if name not in bads and frac > self.max_unpredictable:
+                bads[name] = (f"unpredictable: in {frac:.0%} of 1 s windows its correlation with the other "
+                              f"channels' prediction is below {self.min_correlation:g}")
         self.bads_ = bads
         return self
 
 
-def _neighbour_correlation(x, live):
-    """95th percentile of each channel's correlation with the live channels."""
-    n_times = x.shape[1]
-    step = max(1, n_times // 20000)  # a subsample is plenty for a correlation
-    corr = np.corrcoef(x[:, ::step])
-    corr = np.nan_to_num(corr, nan=0.0)
-    np.fill_diagonal(corr, np.nan)
-    return np.nanpercentile(np.where(live[None, :], corr, np.nan), 95, axis=1)
+def _robust_amplitude(x):
+    med = np.median(x, axis=1, keepdims=True)
+    return 1.4826 * np.median(np.abs(x - med), axis=1)
+
+
+def _unpredictable(y, live, width, min_correlation):
+    """Fraction of windows where each channel correlates poorly with its prediction."""
+    n_ch, n_times = y.shape
+    cov = y[live] @ y[live].T
+    idx = np.flatnonzero(live)
+    pred = np.zeros_like(y)
+    for i in range(n_ch):
+        others = idx[idx != i]
+        pos = np.searchsorted(idx, others)
+        a = cov[np.ix_(pos, pos)]
+        b = y[others] @ y[i]
+        ridge = 1e-3 * np.trace(a) / len(others) * np.eye(len(others))
+        pred[i] = np.linalg.solve(a + ridge, b) @ y[others]
+    n_win = max(1, n_times // width)
+    xs = y[:, :n_win * width].reshape(n_ch, n_win, -1)
+    ps = pred[:, :n_win * width].reshape(n_ch, n_win, -1)
+    xs = xs - xs.mean(axis=-1, keepdims=True)
+    ps = ps - ps.mean(axis=-1, keepdims=True)
+    denom = np.sqrt((xs ** 2).sum(-1) * (ps ** 2).sum(-1))
+    r = np.where(denom > 0, (xs * ps).sum(-1) / np.where(denom > 0, denom, 1.0), 0.0)
+    return (r < min_correlation).mean(axis=1)
 
 
 def filter_pass_band(raw, band):
@@ -119,7 +160,15 @@ def rereference(raw, reference, where="reference"):
     return {"reference": list(reference)}
 
 
-def clean(raw, paradigm, forced_bads=(), where="recording"):
+def _detection_copy(raw, picks):
+    """Data for detection: a copy high-passed at 1 Hz so slow drifts do not dominate (common practice)."""
+    import mne
+
+    x = raw.get_data(picks=picks)
+    return mne.filter.filter_data(x, raw.info["sfreq"], 1.0, None, verbose="error")
+
+
+def clean(raw, paradigm, forced_bads=(), where="recording", restored=None):
     """Pass band, bad channels (detect + interpolate), re-reference, on ``raw`` in place.
 
     Returns
@@ -133,7 +182,8 @@ def clean(raw, paradigm, forced_bads=(), where="recording"):
     names = [raw.ch_names[i] for i in picks]
     bads = {c: "marked bad in the study file" for c in forced_bads if c in names}
     if paradigm.cleaning.bad_channels == "detect":
-        detector = BadChannelDetector().fit(raw.get_data(picks=picks), names)
+        detector = BadChannelDetector().fit(_detection_copy(raw, picks), names, raw.info["sfreq"],
+                                            exclude=[restored] if restored else [])
         bads.update({c: r for c, r in detector.bads_.items() if c not in bads})
     record["bad_channels"] = bads
     if len(bads) > len(names) // 4:

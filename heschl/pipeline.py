@@ -171,7 +171,8 @@ def process_recording(study, recording):
     clock.lap("read")
     raw, markers, harmonised = harmonise(raw, site, paradigm, study.common_channels, where)
     clock.lap("harmonise")
-    cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where)
+    cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
+                     restored=harmonised["restored_reference"])
     clock.lap("clean")
     trials_data, times, entries, ch_names = _trials(raw, markers, paradigm)
     clock.lap("segment and reject")

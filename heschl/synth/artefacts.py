@@ -21,7 +21,7 @@ __all__ = [
     "add_blinks",
     "add_muscle",
     "add_drift",
-    "line_noise",
+    "add_line_noise",
     "choose_bad_channels",
     "corrupt_channel",
     "draw_saturation",
@@ -41,8 +41,8 @@ RAIL_V = 1.5e-3
 #: Channels never made bad: the fronto-central region of the core features.
 PROTECTED = ("Fz", "FCz", "Cz", "FC1", "FC2")
 
-_BLINKS_PER_MIN = {"oddball": 8.0, "clicktrain": 5.0, "rest": 10.0}
-_BLINK_UV = (100.0, 200.0)    # at Fp1, reference-free
+_BLINKS_PER_MIN = {"oddball": 8.0, "clicktrain": 3.0, "rest": 10.0}
+_BLINK_UV = (130.0, 220.0)    # at Fp1, reference-free
 _BLINK_SD_S = (0.045, 0.080)  # rise, fall
 _MIN_BLINK_GAP_S = 1.0
 _MUSCLE_CHANNELS = ("T7", "T8", "FT7", "FT8", "TP7", "TP8")
@@ -65,24 +65,27 @@ def _blink_kernel(sfreq):
 
 
 def _blink_times(rng, schedule):
-    """Blink peak times, s: Poisson, at least 1 s apart, eyes open only at rest."""
-    duration = schedule.duration
-    rate = _BLINKS_PER_MIN[schedule.paradigm] / 60.0
-    times = np.sort(rng.uniform(1.0, duration - 1.0, rng.poisson(rate * duration)))
-    keep = np.diff(times, prepend=-np.inf) > _MIN_BLINK_GAP_S
-    times = times[keep]
+    """Blink peak times, s: a fixed rate, at least 1 s apart, eyes open only at rest.
+
+    The count is the rate times the time with eyes open (rounded), so every recording
+    loses about the same share of trials; the times are uniform, then thinned.
+    """
+    end = schedule.duration - 1.0
     if schedule.paradigm == "rest":
-        times = times[times < schedule.onsets["eyes-closed"][0]]
-    return np.round(times, 3)
+        end = float(schedule.onsets["eyes-closed"][0])
+    count = int(round(_BLINKS_PER_MIN[schedule.paradigm] * (end - 1.0) / 60.0))
+    times = np.sort(rng.uniform(1.0, end, count))
+    keep = np.diff(times, prepend=-np.inf) > _MIN_BLINK_GAP_S
+    return np.round(times[keep], 3)
 
 
 def add_blinks(scalp, rng, schedule, sfreq):
-    """Add blinks to the scalp potentials in place.
+    """Add blinks to the scalp potentials.
 
     Parameters
     ----------
-    scalp : ndarray, shape (n_points, n_times)
-        Reference-free potentials, V; modified in place.
+    scalp : heschl.synth.brain.ScalpParts
+        Reference-free potentials under construction, V.
     rng : numpy.random.Generator
         Source of blink times and sizes.
     schedule : Schedule
@@ -97,8 +100,8 @@ def add_blinks(scalp, rng, schedule, sfreq):
     """
     times = _blink_times(rng, schedule)
     sizes = rng.uniform(*_BLINK_UV, times.size) * UV
-    course = place_kernel(times - 0.3, _blink_kernel(sfreq), scalp.shape[1], sfreq, sizes)
-    scalp += np.outer(geometry.blink_topography(), course)
+    course = place_kernel(times - 0.3, _blink_kernel(sfreq), scalp.n_times, sfreq, sizes)
+    scalp.add(geometry.blink_topography(), course)
     return times.tolist()
 
 
@@ -110,14 +113,16 @@ def _band_noise(rng, n_samples, sfreq, band):
 
 
 def add_muscle(scalp, rng, duration, sfreq):
-    """Add a few bursts of 20-100 Hz activity over a temporal muscle, in place.
+    """Add bursts of 20-100 Hz activity over a temporal muscle, one or two a minute.
+
+    ``scalp`` is a :class:`heschl.synth.brain.ScalpParts`; ``duration`` in s.
 
     Returns
     -------
     list of [float, float]
         ``[start, stop]`` of each burst, s.
     """
-    n_bursts = int(rng.integers(2, 4)) + int(duration // 300)
+    n_bursts = max(1, int(round(duration / 60.0))) + int(rng.integers(0, 2))
     bursts = []
     for _ in range(n_bursts):
         start = round(float(rng.uniform(2.0, duration - 3.0)), 3)
@@ -128,37 +133,54 @@ def add_muscle(scalp, rng, duration, sfreq):
         burst = _band_noise(rng, n, sfreq, _MUSCLE_BAND_HZ)
         burst *= scipy.signal.windows.tukey(n, 0.3) * size
         topography = geometry.focal_topography(centre, 0.03)
-        scalp[:, first:first + n] += np.outer(topography, burst)
+        scalp.dense[:, first:first + n] += np.outer(topography, burst)
         bursts.append([start, round(start + length, 3)])
     return bursts
 
 
 def add_drift(scalp, rng, sfreq):
-    """Add an independent slow random-walk drift to every point, in place."""
-    n_points, n_times = scalp.shape
-    duration = n_times / sfreq
-    knots = np.arange(0.0, duration + _DRIFT_KNOT_S, _DRIFT_KNOT_S)
-    walk = np.cumsum(rng.standard_normal((knots.size, n_points)), axis=0)
-    spline = scipy.interpolate.CubicSpline(knots, walk * _DRIFT_STEP_UV * UV, axis=0)
-    scalp += spline(np.arange(n_times) / sfreq).T
+    """Add an independent slow random-walk drift to every point.
+
+    A random walk with one step per 2 s knot is joined by a cubic spline, evaluated
+    every 0.1 s and interpolated linearly in between. ``scalp`` is a
+    :class:`heschl.synth.brain.ScalpParts` holding whole seconds; ``sfreq`` in Hz.
+    """
+    n_points, n_times = scalp.dense.shape
+    step = int(round(0.1 * sfreq))
+    n_steps = n_times // step
+    knots = np.arange(0.0, n_times / sfreq + 2 * _DRIFT_KNOT_S, _DRIFT_KNOT_S)
+    walk = np.cumsum(rng.standard_normal((n_points, knots.size)), axis=1)
+    spline = scipy.interpolate.CubicSpline(knots, walk * _DRIFT_STEP_UV * UV, axis=1)
+    coarse = spline(np.arange(n_steps + 1) * step / sfreq).astype(np.float32)
+    fraction = (np.arange(step) / step).astype(np.float32)
+    blocks = scalp.dense[:, : n_steps * step].reshape(n_points, n_steps, step)
+    blocks += coarse[:, :-1, None]
+    blocks += np.diff(coarse, axis=1)[:, :, None] * fraction
 
 
-def line_noise(rng, n_points, n_times, sfreq, frequency):
-    """Mains pick-up at every point, 1-4 µV, nearly in phase.
+def add_line_noise(scalp, rng, sfreq, frequency):
+    """Add mains pick-up at every point, 1-4 µV, nearly in phase.
 
     The same random numbers are drawn whatever the frequency, so sites differ only in
     the mains frequency.
 
-    Returns
-    -------
-    ndarray, shape (n_points, n_times)
-        V.
+    Parameters
+    ----------
+    scalp : heschl.synth.brain.ScalpParts
+        Potentials under construction, V.
+    rng : numpy.random.Generator
+        Source of amplitudes and phases.
+    sfreq : float
+        Sampling rate, Hz.
+    frequency : float
+        Mains frequency, Hz.
     """
+    n_points = scalp.dense.shape[0]
     amplitude = rng.uniform(1.0, 4.0, n_points) * UV
     phase = rng.uniform(0, 2 * np.pi) + rng.normal(0.0, 0.3, n_points)
-    angle = 2 * np.pi * frequency * np.arange(n_times) / sfreq
-    return (np.outer(amplitude * np.cos(phase), np.sin(angle))
-            + np.outer(amplitude * np.sin(phase), np.cos(angle)))
+    angle = 2 * np.pi * frequency * np.arange(scalp.n_times) / sfreq
+    scalp.add(amplitude * np.cos(phase), np.sin(angle))
+    scalp.add(amplitude * np.sin(phase), np.cos(angle))
 
 
 def choose_bad_channels(rng, common_channels):
@@ -255,7 +277,7 @@ def apply_saturation(data, window, sfreq, rail=RAIL_V):
 
 
 def add_low_count_transients(scalp, rng, deviant_onsets, sfreq):
-    """Spoil all but a few deviant trials with large movement transients, in place.
+    """Spoil all but a few deviant trials with large movement transients.
 
     Each spoiled deviant gets a broad 150-300 µV deflection centred 0.2 s after its
     onset, inside the deviant's own epoch and clear of its neighbours' baselines.
@@ -270,6 +292,6 @@ def add_low_count_transients(scalp, rng, deviant_onsets, sfreq):
     sizes = rng.uniform(150.0, 300.0, n_spoiled) * UV * rng.choice([-1.0, 1.0], n_spoiled)
     times = np.arange(int(round(0.4 * sfreq))) / sfreq
     kernel = np.exp(-0.5 * ((times - 0.2) / 0.05) ** 2)
-    course = place_kernel(spoiled, kernel, scalp.shape[1], sfreq, sizes)
-    scalp += np.outer(geometry.focal_topography("Cz", 0.08), course)
+    course = place_kernel(spoiled, kernel, scalp.n_times, sfreq, sizes)
+    scalp.add(geometry.focal_topography("Cz", 0.08), course)
     return [round(float(t), 3) for t in spoiled]

@@ -16,7 +16,7 @@ import scipy.special
 from scipy.optimize import brentq
 
 from . import geometry
-from .sites import COMMON_CHANNELS
+from .sites import CHANNELS_64, COMMON_CHANNELS
 
 __all__ = [
     "SFREQ",
@@ -30,6 +30,7 @@ __all__ = [
     "erp_kernel",
     "place_kernel",
     "scalp_potentials",
+    "ScalpParts",
     "expected_values",
 ]
 
@@ -49,11 +50,12 @@ GROUP_VALUES = {
 #: Bands whose background power differs between groups at rest, Hz, [low, high).
 BANDS = {"theta": (4.0, 8.0), "beta": (14.0, 30.0), "gamma": (30.0, 45.0)}
 
-_BACKGROUND_UV = 6.0        # rms per channel in 1-30 Hz, average reference
+_BACKGROUND_UV = 5.0        # rms per channel in 1-30 Hz, average reference
 _SENSOR_FRACTION = 0.08     # share of background power that is independent per sensor
 _N_BACKGROUND_SOURCES = 12
 _NOISE_KNEE_HZ = 1.0        # 1/f spectrum flattens below this
 _NOISE_NORM_BAND = (1.0, 30.0)
+_NOISE_TOP_HZ = 250.0       # amplifier anti-alias filter: no brain noise above
 _MISMATCH_SD_S = 0.030
 _TRAIN_LENGTH_S = 0.5
 _ASSR_HZ = 40.0
@@ -129,6 +131,7 @@ def _noise_shape(n_times, sfreq, exponent, gains):
     freqs = scipy.fft.rfftfreq(n_times, 1.0 / sfreq)
     shape = np.maximum(freqs, _NOISE_KNEE_HZ) ** (-exponent / 2.0)
     shape[0] = 0.0
+    shape[freqs > _NOISE_TOP_HZ] = 0.0
     low, high = _NOISE_NORM_BAND
     band = (freqs >= low) & (freqs < high)
     shape /= np.sqrt(2.0 * np.sum(shape[band] ** 2) / n_times)
@@ -138,8 +141,12 @@ def _noise_shape(n_times, sfreq, exponent, gains):
     return shape
 
 
-def coloured_noise(rng, n_rows, n_times, sfreq, *, exponent=1.0, gains=None, chunk=16):
-    """Gaussian noise with a 1/f^exponent power spectrum (flat below 1 Hz).
+def coloured_noise(rng, n_rows, n_times, sfreq, *, exponent=1.0, gains=None, out=None,
+                   chunk=16):
+    """Gaussian noise with a 1/f^exponent power spectrum, float32.
+
+    The spectrum is flat below 1 Hz and zero above 250 Hz (as behind an amplifier's
+    anti-alias filter).
 
     Parameters
     ----------
@@ -155,6 +162,8 @@ def coloured_noise(rng, n_rows, n_times, sfreq, *, exponent=1.0, gains=None, chu
         Spectral exponent (1 is pink noise).
     gains : dict of str to float, optional
         Power gains for bands of :data:`BANDS`, applied after scaling.
+    out : ndarray, shape (n_rows, n_times), optional
+        Array to write into (float32); a new one if omitted.
     chunk : int, default=16
         Series generated at a time (bounds memory for long recordings).
 
@@ -163,12 +172,14 @@ def coloured_noise(rng, n_rows, n_times, sfreq, *, exponent=1.0, gains=None, chu
     ndarray, shape (n_rows, n_times)
         Each series has unit expected power in 1-30 Hz before the gains; unitless.
     """
-    shape = _noise_shape(n_times, sfreq, exponent, gains)
-    out = np.empty((n_rows, n_times))
+    shape = (_noise_shape(n_times, sfreq, exponent, gains) / np.sqrt(2.0)).astype(np.float32)
+    used = int(np.count_nonzero(shape))
+    out = np.empty((n_rows, n_times), np.float32) if out is None else out
     for start in range(0, n_rows, chunk):
         rows = min(chunk, n_rows - start)
-        spectrum = rng.standard_normal((rows, shape.size, 2)) @ [1.0, 1.0j]
-        spectrum *= shape / np.sqrt(2.0)
+        pairs = rng.standard_normal((rows, used, 2), dtype=np.float32)
+        spectrum = np.zeros((rows, shape.size), np.complex64)
+        spectrum[:, :used] = pairs.view(np.complex64)[..., 0] * shape[:used]
         out[start:start + rows] = scipy.fft.irfft(spectrum, n=n_times, norm="ortho")
     return out
 
@@ -287,23 +298,86 @@ def _alpha(schedule, params, rng, n_times, sfreq):
     return series * envelope * UV
 
 
+class ScalpParts:
+    """Scalp potentials under construction, V.
+
+    Parameters
+    ----------
+    dense : ndarray, shape (n_points, n_times)
+        Parts independent at every point (sensor noise, drift), float32.
+
+    Notes
+    -----
+    Spatially fixed parts (a topography times a time course) are collected and summed
+    with one matrix product in :meth:`total`, which keeps long recordings fast.
+    """
+
+    def __init__(self, dense):
+        self.dense = dense
+        self.topographies = []
+        self.courses = []
+
+    @property
+    def n_times(self):
+        """Number of samples."""
+        return self.dense.shape[1]
+
+    def add(self, topography, course):
+        """Add ``topography (n_points,) x course (n_times,)``, V."""
+        self.topographies.append(np.asarray(topography, np.float32))
+        self.courses.append(np.asarray(course, np.float32))
+
+    def total(self):
+        """Return the summed potentials, shape (n_points, n_times), float32, V."""
+        if self.courses:
+            self.dense += np.stack(self.topographies, axis=1) @ np.stack(self.courses)
+        self.topographies, self.courses = [], []
+        return self.dense
+
+
 def _background(params, patterns, rng, n_times, sfreq, gains):
     """Spatially correlated 1/f background plus independent sensor noise, V."""
     n_sources = patterns.shape[1]
     total = params["background_uv"] * UV
-    source_weight = total * np.sqrt((1.0 - _SENSOR_FRACTION) / n_sources)
-    sources = coloured_noise(rng, n_sources, n_times, sfreq,
-                             exponent=params["background_exponent"], gains=gains)
-    scalp = patterns @ (sources * source_weight)
+    exponent = params["background_exponent"]
+    sources = coloured_noise(rng, n_sources, n_times, sfreq, exponent=exponent,
+                             gains=gains)
+    sources *= total * np.sqrt(1.0 - _SENSOR_FRACTION)
     sensors = coloured_noise(rng, len(geometry.POINTS), n_times, sfreq,
-                             exponent=params["background_exponent"], gains=gains)
-    scalp += sensors * (total * np.sqrt(_SENSOR_FRACTION))
-    return scalp
+                             exponent=exponent, gains=gains)
+    sensors *= total * np.sqrt(_SENSOR_FRACTION)
+    parts = ScalpParts(sensors)
+    for topography, course in zip(patterns.T, sources):
+        parts.add(topography, course)
+    return parts
 
 
-def background_patterns(rng):
-    """Draw a subject's background topographies, shape (n_points, n_sources)."""
-    return geometry.random_dipole_topographies(rng, _N_BACKGROUND_SOURCES)
+def background_patterns(rng, n_iterations=8):
+    """Draw a subject's background mixing matrix.
+
+    Random dipole topographies are mixed and then rescaled point by point until every
+    point has the same background power after average reference over the 64-channel
+    cap, so subjects differ in the spatial correlation of their background but not in
+    its power at any channel.
+
+    Parameters
+    ----------
+    rng : numpy.random.Generator
+        The subject's pattern stream.
+    n_iterations : int, default=8
+        Rescaling passes (the spread of power falls below 1 % after a few).
+
+    Returns
+    -------
+    ndarray, shape (n_points, n_sources)
+        Unitless; sum of squares over sources is 1 at every point (average reference).
+    """
+    mixing = geometry.random_dipole_topographies(rng, _N_BACKGROUND_SOURCES)
+    n_cap = len(CHANNELS_64)
+    for _ in range(n_iterations):
+        referenced = mixing - mixing[:n_cap].mean(axis=0)
+        mixing = mixing / np.sqrt((referenced**2).sum(axis=1))[:, None]
+    return mixing
 
 
 def scalp_potentials(schedule, params, patterns, rng_noise, rng_trials, sfreq=SFREQ):
@@ -326,22 +400,23 @@ def scalp_potentials(schedule, params, patterns, rng_noise, rng_trials, sfreq=SF
 
     Returns
     -------
-    ndarray, shape (n_points, n_times)
-        Potentials at :data:`heschl.synth.geometry.POINTS`, V.
+    ScalpParts
+        Potentials at :data:`heschl.synth.geometry.POINTS`, V; call ``total()`` once
+        every artefact is added.
     """
     n_times = int(round(schedule.duration * sfreq))
     gains = params["band_power_gains"] if schedule.paradigm == "rest" else None
-    scalp = _background(params, patterns, rng_noise, n_times, sfreq, gains)
+    parts = _background(params, patterns, rng_noise, n_times, sfreq, gains)
     if schedule.paradigm == "oddball":
         course = _oddball(schedule, params, n_times, sfreq)
-        scalp += np.outer(geometry.auditory_topography(), -course)
+        parts.add(geometry.auditory_topography(), -course)
     elif schedule.paradigm == "clicktrain":
         course = _clicktrain(schedule, params, rng_trials, n_times, sfreq)
-        scalp += np.outer(geometry.auditory_topography(), -course)
+        parts.add(geometry.auditory_topography(), -course)
     else:
         course = _alpha(schedule, params, rng_noise, n_times, sfreq)
-        scalp += np.outer(geometry.alpha_topography(), course)
-    return scalp
+        parts.add(geometry.alpha_topography(), course)
+    return parts
 
 
 def _region_factor(topography, region, common_channels):
@@ -357,7 +432,40 @@ def _window_mean(kernel, sfreq, window):
     return float(kernel[inside].mean())
 
 
-def expected_values(paradigm, params, common_channels=COMMON_CHANNELS, sfreq=SFREQ):
+def _power_law_integral(low, high, exponent):
+    """Integral of f**-exponent from ``low`` to ``high`` (both at least 1 Hz)."""
+    if np.isclose(exponent, 1.0):
+        return float(np.log(high / low))
+    return float((high ** (1 - exponent) - low ** (1 - exponent)) / (1 - exponent))
+
+
+def _rest_alpha_power(params, patterns, common_channels, region):
+    """Expected alpha-band (8-13 Hz) power per condition at ``region``, V**2.
+
+    Background (sources and sensors, average reference over ``common_channels``) plus
+    the alpha generator; artefacts left out.
+    """
+    exponent = params["background_exponent"]
+    total = (params["background_uv"] * UV) ** 2
+    fraction = (_power_law_integral(8.0, 13.0, exponent)
+                / _power_law_integral(*_NOISE_NORM_BAND, exponent))
+    mixing = geometry.average_reference(patterns, common_channels)
+    rows = [geometry.POINTS.index(name) for name in region]
+    sources = (1.0 - _SENSOR_FRACTION) * float((mixing[rows] ** 2).sum(axis=1).mean())
+    sensors = _SENSOR_FRACTION * (1.0 - 1.0 / len(common_channels))
+    background = total * fraction * (sources + sensors)
+    alpha_topography = geometry.average_reference(geometry.alpha_topography(),
+                                                  common_channels)
+    sd = params["alpha_width_hz"] / np.sqrt(2.0)
+    inside = np.diff(scipy.special.ndtr((np.array([8.0, 13.0])
+                                         - params["alpha_peak_hz"]) / sd))[0]
+    gain = float((alpha_topography[rows] ** 2).mean()) * inside
+    return {condition: background + gain * (amplitude * UV) ** 2
+            for condition, amplitude in params["alpha_uv_oz"].items()}
+
+
+def expected_values(paradigm, params, common_channels=COMMON_CHANNELS, sfreq=SFREQ,
+                    patterns=None):
     """Noise-free values of the core features, from the generator's own model.
 
     Parameters
@@ -370,6 +478,9 @@ def expected_values(paradigm, params, common_channels=COMMON_CHANNELS, sfreq=SFR
         Channels of the average reference.
     sfreq : float, default=SFREQ
         Rate at which waveforms are sampled for window means, Hz.
+    patterns : ndarray, shape (n_points, n_sources), optional
+        The subject's background mixing; needed for the rest values that include the
+        background.
 
     Returns
     -------
@@ -396,6 +507,10 @@ def expected_values(paradigm, params, common_channels=COMMON_CHANNELS, sfreq=SFR
             "assr_amplitude_region_uv": params["assr_uv_fz"] * abs(factor),
         }
     amplitude = params["alpha_uv_oz"]
-    return {"alpha_ratio": (amplitude["eyes-closed"] / amplitude["eyes-open"]) ** 2,
-            "band_power_gains": dict(params["band_power_gains"])}
-
+    expected = {"alpha_ratio": (amplitude["eyes-closed"] / amplitude["eyes-open"]) ** 2,
+                "band_power_gains": dict(params["band_power_gains"])}
+    if patterns is not None:
+        power = _rest_alpha_power(params, patterns, common_channels,
+                                  ("P3", "Pz", "P4", "O1", "Oz", "O2"))
+        expected["alpha_ratio_with_background"] = power["eyes-closed"] / power["eyes-open"]
+    return expected

@@ -130,7 +130,8 @@ def write_edf(path, data, ch_names, sfreq, *, annotations, patient, start, rail)
 
     rail_uv = rail * 1e6
     signals = [
-        edfio.EdfSignal(row * 1e6, sampling_frequency=sfreq, label=name,
+        edfio.EdfSignal(np.clip(np.asarray(row, dtype=float) * 1e6, -rail_uv, rail_uv),
+                        sampling_frequency=sfreq, label=name,
                         transducer_type="AgAgCl electrode", physical_dimension="uV",
                         physical_range=(-rail_uv, rail_uv))
         for row, name in zip(data, ch_names)

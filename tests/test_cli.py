@@ -33,3 +33,26 @@ def test_invalid_study_exits_2_and_writes_nothing(tmp_path, capsys, monkeypatch)
     assert err.startswith("heschl: study.toml: outptu: unknown key") and 'did you mean "output"' in err
     assert "\n" not in err
     assert not (tmp_path / "out").exists() and not (tmp_path / "derivatives").exists()
+
+
+def test_check_lists_channels_duration_and_markers(processed_study, capsys, monkeypatch):
+    study, _ = processed_study
+    monkeypatch.chdir(study.root)
+    assert main(["check", "study.toml"]) == 0
+    out = capsys.readouterr().out.splitlines()
+    birch = next(line for line in out if line.startswith("birch") and "oddball" in line)
+    assert "64 ch (missing: none)" in birch and "512 Hz" in birch and "standard" in birch and "deviant" in birch
+    assert out[-1] == "18 recording(s) found, 0 with problems."
+
+
+def test_check_reports_unmapped_codes_as_a_problem(processed_study, tmp_path, capsys):
+    study, _ = processed_study
+    text = (study.root / "study.toml").read_text().replace('"11" = "standard"', '"99" = "standard"')
+    text = text.replace('"12" = "deviant"', '"98" = "deviant"')
+    (study.root / "broken.toml").write_text(text)
+    try:
+        assert main(["check", str(study.root / "broken.toml")]) == 1
+    finally:
+        (study.root / "broken.toml").unlink()
+    out = capsys.readouterr().out
+    assert "no marker of the paradigm found (codes in the file: 11, 12)" in out

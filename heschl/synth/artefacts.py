@@ -279,8 +279,9 @@ def apply_saturation(data, window, sfreq, rail=RAIL_V):
 def add_low_count_transients(scalp, rng, deviant_onsets, sfreq):
     """Spoil all but a few deviant trials with large movement transients.
 
-    Each spoiled deviant gets a broad 150-300 µV deflection centred 0.2 s after its
-    onset, inside the deviant's own epoch and clear of its neighbours' baselines.
+    Each spoiled deviant gets a broad 150-300 µV biphasic deflection (a Ricker wavelet,
+    zero area, so high-pass filters leave no tail) centred 0.2 s after its onset,
+    inside the deviant's own epoch and clear of its neighbours' epochs.
 
     Returns
     -------
@@ -290,8 +291,8 @@ def add_low_count_transients(scalp, rng, deviant_onsets, sfreq):
     n_spoiled = max(0, deviant_onsets.size - _LOW_COUNT_KEEP)
     spoiled = np.sort(rng.choice(deviant_onsets, n_spoiled, replace=False))
     sizes = rng.uniform(150.0, 300.0, n_spoiled) * UV * rng.choice([-1.0, 1.0], n_spoiled)
-    times = np.arange(int(round(0.4 * sfreq))) / sfreq
-    kernel = np.exp(-0.5 * ((times - 0.2) / 0.05) ** 2)
+    shape = ((np.arange(int(round(0.4 * sfreq))) / sfreq) - 0.2) / 0.05
+    kernel = (1.0 - shape**2) * np.exp(-0.5 * shape**2)  # zero area: no filter tail
     course = place_kernel(spoiled, kernel, scalp.n_times, sfreq, sizes)
     scalp.add(geometry.focal_topography("Cz", 0.08), course)
     return [round(float(t), 3) for t in spoiled]

@@ -1,0 +1,157 @@
+"""End to end on the synthetic study: outputs, ground-truth recovery, QC, resume."""
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from heschl.batch import run_study
+from heschl.outputs import FEATURE_COLUMNS, recording_paths
+from heschl.pipeline import discover
+from heschl.report import CAUTION
+
+
+@pytest.fixture(scope="module")
+def group(processed_study):
+    study, _ = processed_study
+    return pd.read_csv(study.output / "group" / "features.tsv", sep="\t")
+
+
+@pytest.fixture(scope="module")
+def truth(processed_study):
+    study, _ = processed_study
+    return json.loads((study.root / "truth.json").read_text())
+
+
+def _value(group, feature):
+    return group[group.feature == feature].set_index("participant_id")
+
+
+def test_every_recording_is_processed_and_written(processed_study):
+    study, summaries = processed_study
+    assert len(summaries) == 18 and all(s["status"] == "done" for s in summaries), summaries
+    for recording in discover(study):
+        paths = recording_paths(study.output, recording)
+        assert all(p.is_file() for p in paths.values()), recording
+        table = pd.read_csv(paths["features"], sep="\t")
+        assert list(table.columns) == FEATURE_COLUMNS
+    description = json.loads((study.output / "dataset_description.json").read_text())
+    assert description["DatasetType"] == "derivative" and description["GeneratedBy"][0]["Name"] == "heschl"
+    assert not list(study.output.rglob(".*.tmp-*")), "temporary files left behind"
+
+
+def test_group_table_has_site_and_group_columns(group):
+    assert {"participant_id", "site", "group", "paradigm", "feature", "value", "unit"} <= set(group.columns)
+    assert set(group.site) == {"alder", "birch", "cedar"}
+    assert set(group.group) == {"control", "comparison"}
+
+
+def test_comparison_mismatch_is_smaller_than_control(group):
+    # Ground truth of the synthetic scenario (SCENARIO.md): about 40 % smaller mismatch.
+    mmn = _value(group, "mismatch_mean_amplitude")
+    control = mmn[mmn.group == "control"].value.mean()
+    comparison = mmn[mmn.group == "comparison"].value.mean()
+    assert control < 0 and comparison < 0
+    assert abs(comparison) < abs(control)
+
+
+def test_eyes_closed_alpha_exceeds_eyes_open_in_every_recording(group):
+    # Berger effect (REFERENCES F15): posterior alpha larger with eyes closed.
+    closed = _value(group, "band_power_alpha_eyes_closed_posterior").value
+    opened = _value(group, "band_power_alpha_eyes_open_posterior").value
+    assert len(closed) == 6
+    assert (closed > opened).all()
+    assert (_value(group, "alpha_reactivity").value > 1).all()
+
+
+def test_itpc_during_trains_is_high_in_controls_and_above_prestimulus(group):
+    during = _value(group, "itpc_40")
+    before = _value(group, "itpc_40_prestimulus").value
+    controls = during[during.group == "control"].value
+    assert (controls > 0.3).all()
+    # "Clearly above": more than 0.15 above the pre-stimulus value in every recording;
+    # with ~40 trials the null ITPC is about sqrt(pi/(4N)) = 0.14 (REFERENCES F2).
+    assert (during.value - before > 0.15).all()
+
+
+def test_the_low_count_recording_is_flagged_with_its_reason(processed_study, truth):
+    study, _ = processed_study
+    low = [t for t in truth["recordings"] if t["low_count_condition"]]
+    assert len(low) == 1
+    t = low[0]
+    recording = next(r for r in discover(study)
+                     if r.participant_id == t["participant_id"] and r.paradigm == t["paradigm"])
+    qc = json.loads(recording_paths(study.output, recording)["qc"].read_text())
+    assert qc["verdict"] == "unusable"
+    flag = next(f for f in qc["flags"] if f["code"] == "too-few-trials")
+    assert flag["message"].startswith("deviant:") and "below the minimum 30" in flag["message"]
+    assert "peak-to-peak" in flag["message"]
+    table = pd.read_csv(recording_paths(study.output, recording)["features"], sep="\t", keep_default_na=False)
+    assert table.loc[table.feature == "mismatch_mean_amplitude", "flags"].item().startswith("deviant:")
+
+
+def test_bad_channels_are_found(processed_study, truth):
+    study, _ = processed_study
+    found_true = found = true = 0
+    for t in truth["recordings"]:
+        recording = next(r for r in discover(study)
+                         if r.participant_id == t["participant_id"] and r.paradigm == t["paradigm"])
+        qc = json.loads(recording_paths(study.output, recording)["qc"].read_text())
+        flagged = set(qc["channels"]["bad"])
+        injected = {b["standard_name"] for b in t["bad_channels"]}
+        found_true += len(flagged & injected)
+        found += len(flagged)
+        true += len(injected)
+    assert found_true / true >= 0.9 and found_true / found >= 0.8
+
+
+def test_provenance_records_inputs_definitions_versions_and_filter(processed_study):
+    study, _ = processed_study
+    recording = discover(study)[0]
+    prov = json.loads(recording_paths(study.output, recording)["provenance"].read_text())
+    assert all(len(h) == 64 for h in prov["inputs_sha256"].values())
+    assert {"paradigm", "feature_sets", "site"} <= set(prov["definitions"])
+    assert prov["versions"]["heschl"] and prov["versions"]["mne"]
+    # REFERENCES F26 (Picton et al. 2000): filter type, cut-offs and their definition,
+    # causality, sampling rate, reference, artefact criteria, trials after rejection.
+    filt = prov["steps"]["clean"]["filter"]
+    assert {"type", "low_cutoff_hz", "high_cutoff_hz", "cutoff_definition", "causality",
+            "sampling_rate_hz"} <= set(filt)
+    assert prov["steps"]["clean"]["reference"]["reference"] == "average"
+    assert prov["steps"]["rejection"]["peak_to_peak_uv"] == 100.0
+    assert all("kept" in c for c in prov["steps"]["rejection"]["trials"].values())
+
+
+def test_pages_are_self_contained_and_carry_the_caution(processed_study):
+    study, _ = processed_study
+    pages = sorted(study.output.rglob("*_report.html")) + [study.output / "group" / "report.html"]
+    assert len(pages) == 19
+    for page in pages:
+        html = page.read_text()
+        assert CAUTION in html
+        assert "http://" not in html and "https://" not in html
+        assert "<script" not in html
+
+
+def test_second_run_resumes_and_redoes_only_what_changed(study_copy):
+    recordings = discover(study_copy)
+    victim = recording_paths(study_copy.output, recordings[3])
+    victim["provenance"].unlink()  # as if the run had crashed before finishing it
+    summaries = run_study(study_copy, jobs=1)
+    statuses = [s["status"] for s in summaries]
+    assert statuses.count("done") == 1 and statuses[3] == "done"
+    assert statuses.count("unchanged") == len(recordings) - 1
+    assert victim["provenance"].is_file()
+
+
+def test_one_bad_file_does_not_stop_the_study(study_copy):
+    recordings = discover(study_copy)
+    broken = recordings[0].path
+    broken.write_bytes(b"not a recording")
+    summaries = run_study(study_copy, jobs=1, force=True)
+    failed = [s for s in summaries if s["status"] == "failed"]
+    assert len(failed) == 1 and failed[0]["error"].count("\n") == 0
+    assert broken.name in failed[0]["error"]
+    assert sum(s["status"] == "done" for s in summaries) == len(recordings) - 1
+    page = (study_copy.output / "group" / "report.html").read_text()
+    assert "Recordings that failed" in page

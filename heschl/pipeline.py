@@ -266,7 +266,7 @@ def _curves(analysis, source):
     regions = {}
     for fs in analysis.feature_sets:
         regions.update(fs.regions)
-    curves = {"times": source.times.tolist(), "regions": {}}
+    curves = {"times": source.times.tolist(), "pass_band": list(paradigm.cleaning.pass_band)}
     region = next(iter(regions), None)
     if region is None:
         return curves

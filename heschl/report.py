@@ -111,9 +111,18 @@ def figure_spectra(curves):
         ax.semilogy(curves["freqs"], psd, color=colour, lw=1.6, label=name)
     ax.set_xlabel("frequency (Hz)")
     ax.set_ylabel(f"{curves.get('region', '')} PSD (uV^2/Hz)")
-    ax.set_xlim(0, min(60.0, max(curves.get("freqs", [60.0]))))
+    ax.set_xlim(0, curves["pass_band"][1] + 5.0)
+    ax.set_ylim(bottom=_floor(curves))
     ax.legend(frameon=False, fontsize=8)
     return _png(fig)
+
+
+def _floor(curves):
+    """Lower y limit: the smallest PSD value inside the pass band, so the stop band does not squash the plot."""
+    lo, hi = curves["pass_band"]
+    inside = [p for psd in curves.get("psd_uv2_per_hz", {}).values()
+              for f, p in zip(curves["freqs"], psd) if lo <= f <= hi and p > 0]
+    return 0.5 * min(inside) if inside else None
 
 
 def _main_figure(design, curves):

@@ -172,8 +172,9 @@ def coloured_noise(rng, n_rows, n_times, sfreq, *, exponent=1.0, gains=None, out
     ndarray, shape (n_rows, n_times)
         Each series has unit expected power in 1-30 Hz before the gains; unitless.
     """
-    shape = (_noise_shape(n_times, sfreq, exponent, gains) / np.sqrt(2.0)).astype(np.float32)
-    used = int(np.count_nonzero(shape))
+    shape = _noise_shape(n_times, sfreq, exponent, gains) / np.sqrt(2.0)
+    shape = shape.astype(np.float32)
+    used = int(np.flatnonzero(shape)[-1]) + 1  # bins above the top stay zero
     out = np.empty((n_rows, n_times), np.float32) if out is None else out
     for start in range(0, n_rows, chunk):
         rows = min(chunk, n_rows - start)

@@ -17,7 +17,6 @@ from .sites import CHANNELS_64, COMMON_CHANNELS
 __all__ = [
     "POINTS",
     "standard_montage",
-    "channel_positions",
     "EOG_POINTS",
     "point_positions",
     "auditory_topography",
@@ -89,12 +88,6 @@ def point_positions():
     positions = np.array(rows, dtype=float)
     positions.setflags(write=False)
     return positions
-
-
-def channel_positions(names):
-    """Return montage positions of 10-10 channel names, shape (n_names, 3), metres."""
-    positions = point_positions()
-    return positions[[POINTS.index(name) for name in names]]
 
 
 def average_reference(topography, channels=COMMON_CHANNELS):

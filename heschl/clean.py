@@ -145,13 +145,33 @@ def filter_pass_band(raw, band):
             "sampling_rate_hz": float(raw.info["sfreq"])}
 
 
+MASTOID_PAIRS = (("M1", "M2"), ("A1", "A2"), ("TP9", "TP10"))  # closest to the mastoids first
+
+
 def rereference(raw, reference, where="reference"):
-    """Apply the paradigm's reference; returns what was done."""
+    """Apply the paradigm's reference; returns what was done.
+
+    Parameters
+    ----------
+    raw : mne.io.BaseRaw
+    reference : str or tuple of str
+        "average", "linked-mastoids" (the first pair of ``MASTOID_PAIRS`` recorded),
+        "as-recorded", or channel names whose mean becomes the reference.
+    where : str
+        The file, for messages.
+    """
     if reference == "as-recorded":
         return {"reference": "as-recorded"}
     if reference == "average":
         raw.set_eeg_reference("average", projection=False, verbose="error")
         return {"reference": "average", "channels": len(raw.ch_names)}
+    if reference == "linked-mastoids":
+        pair = next((p for p in MASTOID_PAIRS if all(c in raw.ch_names for c in p)), None)
+        if pair is None:
+            raise InputDataError(problem(where, "no mastoid pair (M1/M2, A1/A2 or TP9/TP10) for a linked-mastoid reference",
+                                         "add the mastoid channels to common_channels or choose another reference"))
+        raw.set_eeg_reference(list(pair), projection=False, verbose="error")
+        return {"reference": "linked-mastoids", "channels": list(pair)}
     missing = [c for c in reference if c not in raw.ch_names]
     if missing:
         raise InputDataError(problem(where, f"reference channels {', '.join(missing)} are not in the recording",

@@ -33,7 +33,7 @@ __all__ = [
 
 _REQUIRED = object()
 DESIGNS = ("event-related", "steady-state", "resting")
-REFERENCE_WORDS = ("average", "as-recorded")
+REFERENCE_WORDS = ("average", "as-recorded", "linked-mastoids")
 RECORDING_REFERENCE_WORDS = ("average", "linked-mastoids", "unknown")
 REJECTION_METHODS = ("fixed", "none")
 BAD_CHANNEL_POLICIES = ("detect", "keep")
@@ -437,7 +437,7 @@ def _cleaning(top):
         ref = section.strings("reference")
     elif not isinstance(ref, str) or not ref.strip():
         section.fail("reference", f"expected a text or a list of channel names, got {_show(ref)}",
-                     'use "average", "as-recorded", a channel name or a list of channel names')
+                     'use "average", "linked-mastoids", "as-recorded", a channel name or a list of channel names')
     elif ref not in REFERENCE_WORDS:
         ref = (ref,)
     policy = section.string("bad_channels", default="detect", choices=BAD_CHANNEL_POLICIES)

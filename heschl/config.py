@@ -117,6 +117,7 @@ class Paradigm:
     segments: object              # SegmentSpec or None
     rejection: Rejection
     stimulation: dict
+    quality: dict
     document: dict = field(repr=False, compare=False)
 
     @property
@@ -367,7 +368,15 @@ def resolve_definition(name, kind, base, where, key):
 
 # --------------------------------------------------------------------------- paradigm
 _PARADIGM_KEYS = {"name", "design", "summary", "conditions", "contrasts", "cleaning", "epochs",
-                  "segments", "rejection", "stimulation"}
+                  "segments", "rejection", "stimulation", "quality"}
+# QC thresholds: key -> (default, low, high). A recording beyond one is flagged "caution".
+QUALITY_KEYS = {
+    "max_dropped": (0.3, 0.0, 1.0),        # fraction of a condition's planned trials dropped
+    "max_interpolated": (0.15, 0.0, 1.0),  # fraction of channels interpolated
+    "min_snr": (1.1, 0.0, None),           # plus-minus SNR of each condition average (epoch designs)
+    "max_line_ratio": (3.0, 1.0, None),    # residual line-noise power over neighbouring bins
+    "max_eog_correlation": (0.2, 0.0, 1.0),  # residual |correlation| of EEG with EOG
+}
 
 
 def load_paradigm(path):
@@ -382,10 +391,12 @@ def load_paradigm(path):
     epochs, segments = _timing(top, design, conditions)
     rejection = _rejection(top, conditions)
     stimulation = _stimulation(top, cleaning)
+    section = top.sub("quality", set(QUALITY_KEYS), default={})
+    quality = {k: section.number(k, default=d, low=lo, high=hi) for k, (d, lo, hi) in QUALITY_KEYS.items()}
     return Paradigm(name=name, design=design, summary=top.string("summary", default=""),
                     source=str(path), conditions=conditions, contrasts=contrasts,
                     cleaning=cleaning, epochs=epochs, segments=segments, rejection=rejection,
-                    stimulation=stimulation, document=doc)
+                    stimulation=stimulation, quality=quality, document=doc)
 
 
 def _conditions(top):

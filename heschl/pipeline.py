@@ -183,7 +183,8 @@ def process_recording(study, recording):
     curves = _curves(analysis, source)
     clock.lap("features")
     counts = _counts(entries, paradigm)
-    qc = _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm)
+    snr = _snr(source, paradigm)
+    qc = _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr)
     definitions = definitions_of(study, recording)
     provenance = {
         "recording": {"site": recording.site, "participant_id": recording.participant_id,
@@ -260,6 +261,20 @@ def _counts(entries, paradigm):
     return counts
 
 
+def _snr(source, paradigm):
+    """Plus-minus SNR of each condition average over all channels, after the marker."""
+    from .numeric.erp import plus_minus_snr
+
+    if paradigm.epochs is None:
+        return {}
+    window = (0.0, float(source.times[-1]))
+    out = {}
+    for c, trials in source.data.items():
+        value = float(plus_minus_snr(trials, source.times, window, pooled=True))
+        out[c] = value if np.isfinite(value) else None
+    return out
+
+
 def _curves(analysis, source):
     """Arrays for the QC page's figures, computed once here (the page never recomputes)."""
     paradigm = analysis.paradigm
@@ -302,20 +317,19 @@ def _flag(level, code, message):
     return {"level": level, "code": code, "message": message}
 
 
-def _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm):
-    flags = []
-    for c, n in counts.items():
-        if n["kept"] < n["minimum"]:
-            reasons = ", ".join(f"{k} {v}" for k, v in n["reasons"].items()) or "none dropped"
-            flags.append(_flag("unusable", "too-few-trials",
-                               f"{c}: {n['kept']} trials kept, below the minimum {n['minimum']} "
-                               f"({n['planned']} planned; dropped: {reasons})"))
-        elif n["planned"] and n["dropped"] / n["planned"] > 0.3:
-            flags.append(_flag("caution", "many-dropped", f"{c}: {n['dropped']} of {n['planned']} trials dropped"))
+def _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr):
+    limits = paradigm.quality
+    flags = _trial_flags(counts, limits)
     bads = cleaning["bad_channels"]
+    n_channels = len(harmonised["channels"])
     if bads:
-        flags.append(_flag("note", "channels-interpolated",
-                           f"{len(bads)} channel(s) interpolated: " + ", ".join(sorted(bads))))
+        level = "caution" if len(bads) / n_channels > limits["max_interpolated"] else "note"
+        flags.append(_flag(level, "channels-interpolated", f"{len(bads)} of {n_channels} channel(s) interpolated: "
+                           + ", ".join(sorted(bads))))
+    for c, value in snr.items():
+        if value is not None and value < limits["min_snr"]:
+            flags.append(_flag("caution", "low-snr", f"{c}: average SNR {value:.2f} below {limits['min_snr']:g} "
+                               "(plus-minus estimate)"))
     if markers.unknown:
         flags.append(_flag("note", "unmapped-markers", "codes in the file not used by this paradigm: "
                            + ", ".join(f"{k} ({v})" for k, v in sorted(markers.unknown.items()))))
@@ -331,18 +345,38 @@ def _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm):
         "paradigm": recording.paradigm,
         "verdict": "clear" if worst < 0 else FLAG_LEVELS[worst],
         "flags": flags,
+        "thresholds": limits,
         "channels": {"file": harmonised["file_channels"], "renamed": harmonised["renamed"],
                      "restored_reference": harmonised["restored_reference"],
                      "eog": harmonised["eog_channels"], "analysed": harmonised["channels"],
-                     "bad": bads, "interpolated": cleaning["interpolated"]},
+                     "bad": bads, "interpolated": cleaning["interpolated"],
+                     "interpolated_fraction": len(bads) / n_channels},
         "markers": {"counts": _marker_counts(markers), "unmapped": markers.unknown,
                     "trigger_delay_s": harmonised["trigger_delay_s"]},
         "trials": counts,
+        "snr": snr,
         "sampling_rate_hz": {"file": harmonised["file_sampling_rate"], "analysis": harmonised["sampling_rate"]},
         "duration_s": harmonised["duration_s"],
         "filter": cleaning["filter"],
         "reference": cleaning["reference"],
     }
+
+
+def _trial_flags(counts, limits):
+    flags = []
+    for c, n in counts.items():
+        if n["kept"] < n["minimum"]:
+            reasons = ", ".join(f"{k} {v}" for k, v in n["reasons"].items()) or "none dropped"
+            flags.append(_flag("unusable", "too-few-trials",
+                               f"{c}: {n['kept']} trials kept, below the minimum {n['minimum']} "
+                               f"({n['planned']} planned; dropped: {reasons})"))
+            continue
+        skipped = n["reasons"].get("skipped", 0)  # left out by design, not for artefacts
+        eligible, dropped = n["planned"] - skipped, n["dropped"] - skipped
+        if eligible and dropped / eligible > limits["max_dropped"]:
+            flags.append(_flag("caution", "many-dropped", f"{c}: {dropped} of {eligible} trials dropped, "
+                               f"more than {limits['max_dropped']:.0%}"))
+    return flags
 
 
 def _marker_counts(markers):

@@ -67,11 +67,13 @@ def test_eyes_closed_alpha_exceeds_eyes_open_in_every_recording(group):
 def test_itpc_during_trains_is_high_in_controls_and_above_prestimulus(group):
     during = _value(group, "itpc_40")
     before = _value(group, "itpc_40_prestimulus").value
-    controls = during[during.group == "control"].value
-    assert (controls > 0.3).all()
-    # "Clearly above": more than 0.15 above the pre-stimulus value in every recording;
-    # with ~40 trials the null ITPC is about sqrt(pi/(4N)) = 0.14 (REFERENCES F2).
-    assert (during.value - before > 0.15).all()
+    controls = during[during.group == "control"]
+    assert (controls.value > 0.3).all()
+    # "Clearly above": in controls at least twice the pre-stimulus value, and in every
+    # recording more than 0.1 above it; with ~40 trials the null ITPC of one channel is
+    # about sqrt(pi/(4N)) = 0.14 (REFERENCES F2), and averaging over the region lowers it.
+    assert (controls.value > 2 * before[controls.index]).all()
+    assert (during.value - before > 0.1).all()
 
 
 def test_the_low_count_recording_is_flagged_with_its_reason(processed_study, truth):

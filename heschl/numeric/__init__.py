@@ -3,7 +3,7 @@
 Nothing here knows about configuration, the CLI, reports or mne objects; every function
 takes arrays in SI units (V, s, Hz) and documents shapes.
 """
-from heschl.numeric.erp import POLARITIES, Peak, mean_amplitude, peak, region_mean
+from heschl.numeric.erp import POLARITIES, Peak, mean_amplitude, peak, plus_minus_snr, region_mean
 from heschl.numeric.phase import (
     evoked_power,
     induced_power,
@@ -43,6 +43,7 @@ __all__ = [
     "peak",
     "Peak",
     "region_mean",
+    "plus_minus_snr",
     "POLARITIES",
     "peak_to_peak",
     "fixed_threshold",

@@ -10,7 +10,7 @@ import numpy as np
 
 from heschl.errors import DefinitionError, InputDataError, did_you_mean, problem
 
-__all__ = ["mean_amplitude", "peak", "Peak", "region_mean", "POLARITIES"]
+__all__ = ["mean_amplitude", "peak", "Peak", "region_mean", "plus_minus_snr", "POLARITIES"]
 
 POLARITIES = ("negative", "positive")
 
@@ -195,3 +195,36 @@ def region_mean(x, channel_names, region):
             where, f"channels {hints} of the region are not in the data "
             f"({len(names)} channels)", "fix the region or the channel names", key="region"))
     return x[..., [names.index(c) for c in wanted], :].mean(axis=-2)
+
+
+def plus_minus_snr(trials, times, window, pooled=False):
+    """Signal-to-noise ratio of an average, with noise from the plus-minus average.
+
+    The plus-minus (alternating-sign) average cancels the time-locked signal and keeps
+    noise of the same size as in the ordinary average (Schimmel 1967, Science
+    155:1575-1577), so ``rms(average) / rms(plus-minus average)`` over the window is the
+    amplitude SNR; about 1 when there is no response.
+
+    Parameters
+    ----------
+    trials : ndarray, shape (n_trials, ..., n_times), V
+    times : ndarray, shape (n_times,), s
+    window : (float, float), s
+    pooled : bool, default=False
+        Pool the middle axes (e.g. channels) too, giving one SNR for the whole average.
+
+    Returns
+    -------
+    snr : ndarray, shape (...), or float when ``pooled``
+        NaN with fewer than two trials.
+    """
+    trials = np.asarray(trials, dtype=float)
+    n = trials.shape[0] - trials.shape[0] % 2
+    if n < 2:
+        return float("nan") if pooled else np.full(trials.shape[1:-1], np.nan)
+    _, mask = _window_mask(trials, times, window, "plus_minus_snr")
+    signs = np.where(np.arange(n) % 2 == 0, 1.0, -1.0).reshape((n,) + (1,) * (trials.ndim - 1))
+    average = trials[:n].mean(axis=0)[..., mask]
+    noise = (signs * trials[:n]).mean(axis=0)[..., mask]
+    axes = tuple(range(average.ndim)) if pooled else -1
+    return np.sqrt((average ** 2).mean(axis=axes) / (noise ** 2).mean(axis=axes))

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 import scipy.fft
+import scipy.integrate
 import scipy.signal
 import scipy.special
 from scipy.optimize import brentq
@@ -25,6 +26,7 @@ __all__ = [
     "draw_subject_params",
     "background_patterns",
     "coloured_noise",
+    "aperiodic_power",
     "itpc_from_kappa",
     "kappa_from_itpc",
     "erp_kernel",
@@ -50,10 +52,10 @@ GROUP_VALUES = {
 #: Bands whose background power differs between groups at rest, Hz, [low, high).
 BANDS = {"theta": (4.0, 8.0), "beta": (14.0, 30.0), "gamma": (30.0, 45.0)}
 
-_BACKGROUND_UV = 5.0        # rms per channel in 1-30 Hz, average reference
+_BACKGROUND_UV = 3.0        # aperiodic part: rms per channel in 1-30 Hz, average ref.
 _SENSOR_FRACTION = 0.08     # share of background power that is independent per sensor
 _N_BACKGROUND_SOURCES = 12
-_NOISE_KNEE_HZ = 1.0        # 1/f spectrum flattens below this
+_NOISE_KNEE_HZ = 4.0        # aperiodic spectrum 1 / (knee + f): flat well below it
 _NOISE_NORM_BAND = (1.0, 30.0)
 _NOISE_TOP_HZ = 250.0       # amplifier anti-alias filter: no brain noise above
 _MISMATCH_SD_S = 0.030
@@ -62,6 +64,7 @@ _ASSR_HZ = 40.0
 _ASSR_RISE_S = 0.033        # build-up time constant: 95 % after 100 ms
 _ASSR_DECAY_S = 0.020
 _ALPHA_WIDTH_HZ = 0.8
+_BETA_WIDTH_HZ = 2.0
 _ALPHA_SWITCH_S = (0.5, 0.3)  # delay after the marker, duration of the change
 
 
@@ -108,10 +111,14 @@ def draw_subject_params(rng, group):
         "alpha_width_hz": _ALPHA_WIDTH_HZ,
         "alpha_uv_oz": {"eyes-open": eyes_open_uv,
                         "eyes-closed": _spread(rng, 3.0, 0.08) * eyes_open_uv},
+        "beta_peak_hz": round(float(rng.uniform(18.0, 22.0)), 2),
+        "beta_width_hz": _BETA_WIDTH_HZ,
+        "beta_uv_cz": _spread(rng, 3.0, 0.15),
         "band_power_gains": {band: _spread(rng, gain, 0.04)
                              for band, gain in values["gains"].items()},
         "background_uv": _BACKGROUND_UV,
         "background_exponent": 1.0,
+        "background_knee_hz": _NOISE_KNEE_HZ,
     }
     return params
 
@@ -126,10 +133,29 @@ def kappa_from_itpc(itpc):
     return float(brentq(lambda k: itpc_from_kappa(k) - itpc, 1e-6, 1e3))
 
 
+def aperiodic_power(freqs, exponent=1.0, knee=_NOISE_KNEE_HZ):
+    """Unscaled power spectrum of the background: 1 / (knee**e + f**e).
+
+    Parameters
+    ----------
+    freqs : ndarray
+        Frequencies, Hz.
+    exponent : float, default=1.0
+        Exponent e above the knee (1 is pink).
+    knee : float, default=4.0
+        Knee frequency, Hz; the spectrum flattens below it.
+
+    Returns
+    -------
+    ndarray, same shape as ``freqs``
+    """
+    return 1.0 / (knee**exponent + np.asarray(freqs, dtype=float) ** exponent)
+
+
 def _noise_shape(n_times, sfreq, exponent, gains):
     """Amplitude spectrum of the background, scaled to unit power in 1-30 Hz."""
     freqs = scipy.fft.rfftfreq(n_times, 1.0 / sfreq)
-    shape = np.maximum(freqs, _NOISE_KNEE_HZ) ** (-exponent / 2.0)
+    shape = np.sqrt(aperiodic_power(freqs, exponent))
     shape[0] = 0.0
     shape[freqs > _NOISE_TOP_HZ] = 0.0
     low, high = _NOISE_NORM_BAND
@@ -143,10 +169,10 @@ def _noise_shape(n_times, sfreq, exponent, gains):
 
 def coloured_noise(rng, n_rows, n_times, sfreq, *, exponent=1.0, gains=None, out=None,
                    chunk=16):
-    """Gaussian noise with a 1/f^exponent power spectrum, float32.
+    """Gaussian noise with an aperiodic (1/f-like) power spectrum, float32.
 
-    The spectrum is flat below 1 Hz and zero above 250 Hz (as behind an amplifier's
-    anti-alias filter).
+    The power spectrum is :func:`aperiodic_power`: 1/f^exponent above a 4 Hz knee,
+    flat below it, and zero above 250 Hz (as behind an amplifier's anti-alias filter).
 
     Parameters
     ----------
@@ -285,12 +311,17 @@ def _clicktrain(schedule, params, rng, n_times, sfreq):
 
 
 def _alpha(schedule, params, rng, n_times, sfreq):
-    """Posterior alpha time course, V at Oz: eyes-closed amplitude after its marker."""
+    """Posterior alpha time course, V at Oz.
+
+    Eyes-open amplitude throughout (tasks are done with eyes open), rising to the
+    eyes-closed amplitude after an eyes-closed marker.
+    """
     series = _narrowband_noise(rng, n_times, sfreq, params["alpha_peak_hz"],
                                params["alpha_width_hz"])
     times = np.arange(n_times) / sfreq
     delay, ramp = _ALPHA_SWITCH_S
-    closed_at = float(schedule.onsets["eyes-closed"][0]) + delay
+    closed = schedule.onsets.get("eyes-closed", [np.inf])
+    closed_at = float(closed[0]) + delay
     switch = np.clip((times - closed_at) / ramp, 0.0, 1.0)
     switch = 0.5 - 0.5 * np.cos(np.pi * switch)
     amplitude = params["alpha_uv_oz"]
@@ -334,6 +365,14 @@ class ScalpParts:
             self.dense += np.stack(self.topographies, axis=1) @ np.stack(self.courses)
         self.topographies, self.courses = [], []
         return self.dense
+
+
+def _beta(params, rng, n_times, sfreq, gains):
+    """Fronto-central beta rhythm, V at Cz; at rest scaled by the beta power gain."""
+    series = _narrowband_noise(rng, n_times, sfreq, params["beta_peak_hz"],
+                               params["beta_width_hz"])
+    gain = (gains or {}).get("beta", 1.0)
+    return series * params["beta_uv_cz"] * np.sqrt(gain) * UV
 
 
 def _background(params, patterns, rng, n_times, sfreq, gains):
@@ -408,15 +447,15 @@ def scalp_potentials(schedule, params, patterns, rng_noise, rng_trials, sfreq=SF
     n_times = int(round(schedule.duration * sfreq))
     gains = params["band_power_gains"] if schedule.paradigm == "rest" else None
     parts = _background(params, patterns, rng_noise, n_times, sfreq, gains)
+    parts.add(geometry.alpha_topography(),
+              _alpha(schedule, params, rng_noise, n_times, sfreq))
+    parts.add(geometry.beta_topography(), _beta(params, rng_noise, n_times, sfreq, gains))
     if schedule.paradigm == "oddball":
         course = _oddball(schedule, params, n_times, sfreq)
         parts.add(geometry.auditory_topography(), -course)
     elif schedule.paradigm == "clicktrain":
         course = _clicktrain(schedule, params, rng_trials, n_times, sfreq)
         parts.add(geometry.auditory_topography(), -course)
-    else:
-        course = _alpha(schedule, params, rng_noise, n_times, sfreq)
-        parts.add(geometry.alpha_topography(), course)
     return parts
 
 
@@ -433,11 +472,10 @@ def _window_mean(kernel, sfreq, window):
     return float(kernel[inside].mean())
 
 
-def _power_law_integral(low, high, exponent):
-    """Integral of f**-exponent from ``low`` to ``high`` (both at least 1 Hz)."""
-    if np.isclose(exponent, 1.0):
-        return float(np.log(high / low))
-    return float((high ** (1 - exponent) - low ** (1 - exponent)) / (1 - exponent))
+def _aperiodic_integral(low, high, exponent, knee):
+    """Integral of :func:`aperiodic_power` from ``low`` to ``high`` Hz (0.01 Hz grid)."""
+    freqs = np.arange(low, high + 1e-9, 0.01)
+    return float(scipy.integrate.trapezoid(aperiodic_power(freqs, exponent, knee), freqs))
 
 
 def _rest_alpha_power(params, patterns, common_channels, region):
@@ -446,10 +484,10 @@ def _rest_alpha_power(params, patterns, common_channels, region):
     Background (sources and sensors, average reference over ``common_channels``) plus
     the alpha generator; artefacts left out.
     """
-    exponent = params["background_exponent"]
+    exponent, knee = params["background_exponent"], params["background_knee_hz"]
     total = (params["background_uv"] * UV) ** 2
-    fraction = (_power_law_integral(8.0, 13.0, exponent)
-                / _power_law_integral(*_NOISE_NORM_BAND, exponent))
+    fraction = (_aperiodic_integral(8.0, 13.0, exponent, knee)
+                / _aperiodic_integral(*_NOISE_NORM_BAND, exponent, knee))
     mixing = geometry.average_reference(patterns, common_channels)
     rows = [geometry.POINTS.index(name) for name in region]
     sources = (1.0 - _SENSOR_FRACTION) * float((mixing[rows] ** 2).sum(axis=1).mean())

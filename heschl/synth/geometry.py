@@ -21,6 +21,7 @@ __all__ = [
     "point_positions",
     "auditory_topography",
     "alpha_topography",
+    "beta_topography",
     "blink_topography",
     "focal_topography",
     "random_dipole_topographies",
@@ -151,6 +152,18 @@ def alpha_topography():
     left = _dipole_potential((-0.02, -0.075, 0.02), (0.2, -1.0, 0.8))
     right = _dipole_potential((0.02, -0.075, 0.02), (-0.2, -1.0, 0.8))
     return _scaled_to(left + right, "Oz", 1.0)
+
+
+@functools.lru_cache(maxsize=1)
+def beta_topography():
+    """Fronto-central (sensorimotor) beta generator.
+
+    Returns
+    -------
+    ndarray, shape (n_points,)
+        Scaled so that, after average reference over the common channels, Cz is 1.
+    """
+    return _scaled_to(_dipole_potential((0.0, 0.01, 0.03), (0.0, 0.3, 1.0)), "Cz", 1.0)
 
 
 @functools.lru_cache(maxsize=1)

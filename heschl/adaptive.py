@@ -1,0 +1,358 @@
+"""Adaptive epoch rejection: per-channel peak-to-peak thresholds learnt by cross-validation,
+bad channels interpolated epoch by epoch, epochs with too many bad channels dropped.
+
+autoreject's ``AutoReject`` (Jas et al. 2017) learns the thresholds, the number of
+channels it may interpolate per epoch and the consensus (fraction of bad channels that
+drops an epoch) on the *detection* copy of the trials (high-passed at 1 Hz, so slow
+drifts cannot inflate peak-to-peak amplitudes). Its decisions are then applied to the
+*analysis* copy (which may keep frequencies down to 0.1 Hz): the same epochs are
+dropped, and the same channels are interpolated, with mne's spherical splines, in the
+analysis data. An epoch whose interpolated channels form a group of neighbours larger
+than ``max_cluster`` is dropped too: a patch of scalp reconstructed from its rim is a
+guess, not a measurement.
+
+Arrays are in V inside; thresholds are reported in uV for people.
+"""
+from __future__ import annotations
+
+import logging
+import math
+
+import numpy as np
+
+from .errors import InputDataError, problem
+
+__all__ = ["interpolation_candidates", "channel_adjacency", "interpolated_clusters",
+           "adaptive_reject", "CONSENSUS_CANDIDATES", "MIN_EPOCHS"]
+
+log = logging.getLogger(__name__)
+
+#: Fractions of the channels that, bad together in one epoch, drop it (autoreject's
+#: consensus); 10-50 % spans lenient to strict for 16-128 channels.
+CONSENSUS_CANDIDATES = (0.1, 0.2, 0.3, 0.4, 0.5)
+
+#: Fewest epochs for which cross-validated thresholds are attempted.
+MIN_EPOCHS = 10
+
+#: Fewest validation epochs per cross-validation fold (the fold's score compares a
+#: training mean with the validation median; a median of fewer than 3 is one epoch).
+MIN_VALIDATION_EPOCHS = 3
+
+#: Sphere centre for the spline interpolation, m, head frame of the template montage;
+#: the same centre `heschl.clean` uses for bad channels.
+INTERPOLATION_ORIGIN = (0.0, 0.0, 0.04)
+
+#: Distance rule for the adjacency fallback: channels closer than this many times the
+#: median nearest-neighbour distance are neighbours. On a regular grid 1.5 reaches the
+#: diagonal neighbours (sqrt(2) = 1.41) but not the second ring (2).
+NEIGHBOUR_DISTANCE_RATIO = 1.5
+
+
+def interpolation_candidates(n_channels):
+    """Candidate numbers of channels autoreject may interpolate per epoch.
+
+    Rule: with ``top = n_channels // 4`` (interpolating more than a quarter of the
+    channels leaves too few to interpolate from, the same limit `heschl.clean` applies
+    to bad channels), the candidates are ``1, top // 4, top // 2, top``, kept when at
+    least 1, without repeats. 8 channels -> (1, 2); 32 -> (1, 2, 4, 8);
+    64 -> (1, 4, 8, 16); 128 -> (1, 8, 16, 32). Below 4 channels nothing may be
+    interpolated and the only candidate is 0 (epochs are only dropped).
+
+    Parameters
+    ----------
+    n_channels : int
+        Number of EEG channels.
+
+    Returns
+    -------
+    candidates : tuple of int
+        Increasing, each at most ``n_channels / 4``.
+    """
+    if isinstance(n_channels, bool) or not isinstance(n_channels, (int, np.integer)) or n_channels < 1:
+        raise InputDataError(problem("interpolation_candidates", f"n_channels = {n_channels!r}",
+                                     "pass the number of EEG channels, a positive integer",
+                                     key="n_channels"))
+    top = int(n_channels) // 4
+    if top < 1:
+        return (0,)
+    return tuple(sorted({c for c in (1, top // 4, top // 2, top) if c >= 1}))
+
+
+def _positions(info, where="adaptive_reject"):
+    """Channel positions, m, shape (n_channels, 3); InputDataError if any is missing."""
+    pos = np.array([ch["loc"][:3] for ch in info["chs"]], dtype=float)
+    missing = [name for name, p in zip(info["ch_names"], pos)
+               if not np.all(np.isfinite(p)) or np.allclose(p, 0.0)]
+    if missing:
+        shown = ", ".join(missing[:6]) + (", ..." if len(missing) > 6 else "")
+        raise InputDataError(problem(
+            where, f"{len(missing)} of {len(pos)} channels have no position ({shown})",
+            "set a montage on the data (mne's set_montage) or drop the channels without a "
+            "position before adaptive rejection", key="info"))
+    return pos
+
+
+def _distance_adjacency(pos):
+    from scipy.spatial.distance import cdist
+
+    dist = cdist(pos, pos)
+    np.fill_diagonal(dist, np.inf)
+    radius = NEIGHBOUR_DISTANCE_RATIO * np.median(dist.min(axis=1))
+    return dist <= radius
+
+
+def _adjacency(info):
+    """(bool csr matrix without self-loops, ch_names in info order, source)."""
+    import mne
+    from scipy import sparse
+
+    names = list(info["ch_names"])
+    pos = _positions(info, where="channel_adjacency")
+    try:
+        with mne.utils.use_log_level("error"):
+            found, found_names = mne.channels.find_ch_adjacency(info, "eeg")
+        order = [list(found_names).index(n) for n in names]
+        dense = sparse.csr_array(found).toarray().astype(bool)[np.ix_(order, order)]
+        source = "mne find_ch_adjacency"
+    except Exception as exc:  # triangulation fails on coplanar or too few positions
+        log.info("Adjacency from the montage failed (%s); using the distance rule", exc)
+        dense = _distance_adjacency(pos)
+        source = f"distance < {NEIGHBOUR_DISTANCE_RATIO:g} x median nearest-neighbour distance"
+    np.fill_diagonal(dense, False)
+    return sparse.csr_array(dense | dense.T), names, source
+
+
+def channel_adjacency(info):
+    """Which EEG channels are neighbours on the scalp.
+
+    From ``mne.channels.find_ch_adjacency(info, "eeg")`` (a template for known caps, else
+    a Delaunay triangulation of the positions). If that fails (e.g. positions on one
+    plane, or too few channels to triangulate), channels closer than 1.5 x the median
+    nearest-neighbour distance are neighbours (`NEIGHBOUR_DISTANCE_RATIO`).
+
+    Parameters
+    ----------
+    info : mne.Info
+        EEG channels only, with positions (a montage set).
+
+    Returns
+    -------
+    adjacency : scipy.sparse.csr_array of bool, shape (n_channels, n_channels)
+        Symmetric, False on the diagonal.
+    ch_names : list of str
+        In the order of ``info["ch_names"]``.
+    """
+    adjacency, names, _ = _adjacency(info)
+    return adjacency, names
+
+
+def interpolated_clusters(bad_mask, adjacency):
+    """Size of the largest connected group of interpolated channels in each epoch.
+
+    Parameters
+    ----------
+    bad_mask : ndarray of bool, shape (n_epochs, n_channels)
+        True where a channel is interpolated in an epoch.
+    adjacency : ndarray or scipy sparse matrix, shape (n_channels, n_channels)
+        Nonzero where two channels are neighbours (the diagonal is ignored).
+
+    Returns
+    -------
+    sizes : ndarray of int, shape (n_epochs,)
+        0 for epochs with nothing interpolated.
+    """
+    from scipy import sparse
+    from scipy.sparse.csgraph import connected_components
+
+    mask = np.asarray(bad_mask, dtype=bool)
+    adj = sparse.csr_array(adjacency)
+    if mask.ndim != 2 or adj.shape != (mask.shape[1], mask.shape[1]):
+        raise InputDataError(problem(
+            "interpolated_clusters", f"bad_mask has shape {mask.shape} and adjacency {adj.shape}",
+            "pass bad_mask shaped (n_epochs, n_channels) and a square adjacency of n_channels",
+            key="bad_mask"))
+    sizes = np.zeros(len(mask), dtype=int)
+    seen = {}
+    for e, row in enumerate(mask):
+        idx = np.flatnonzero(row)
+        if idx.size == 0:
+            continue
+        key = idx.tobytes()
+        if key not in seen:
+            _, labels = connected_components(adj[idx][:, idx], directed=False)
+            seen[key] = int(np.bincount(labels).max())
+        sizes[e] = seen[key]
+    return sizes
+
+
+def _check_arrays(epochs_data, detection_data, info):
+    analysis = np.array(epochs_data, dtype=float)  # copies: the caller's arrays stay as they are
+    detection = np.array(detection_data, dtype=float)
+    if analysis.ndim != 3 or analysis.shape != detection.shape:
+        raise InputDataError(problem(
+            "adaptive_reject", f"epochs_data has shape {analysis.shape} and detection_data "
+            f"{detection.shape}", "pass the same trials twice, each shaped "
+            "(n_epochs, n_channels, n_times), V", key="detection_data"))
+    if analysis.shape[1] != info["nchan"]:
+        raise InputDataError(problem(
+            "adaptive_reject", f"the data have {analysis.shape[1]} channels but info has "
+            f"{info['nchan']}", "pass the info of the cut EEG channels, e.g. "
+            "mne.pick_info(raw.info, mne.pick_types(raw.info, eeg=True))", key="info"))
+    for name, x in (("epochs_data", analysis), ("detection_data", detection)):
+        if not np.all(np.isfinite(x)):
+            raise InputDataError(problem("adaptive_reject", f"{name} holds NaN or infinite values",
+                                         "drop or repair those samples before rejection", key=name))
+    return analysis, detection
+
+
+def _eeg_info(info):
+    types = set(info.get_channel_types())
+    if types != {"eeg"}:
+        raise InputDataError(problem(
+            "adaptive_reject", f"info holds channel types {sorted(types)}, not only eeg",
+            "pass the info of the cut EEG channels, e.g. "
+            "mne.pick_info(raw.info, mne.pick_types(raw.info, eeg=True))", key="info"))
+    _positions(info)
+    info = info.copy()
+    info["bads"] = []  # every cut channel is judged; bad channels were repaired before cutting
+    return info
+
+
+def _folds(n_epochs, cv):
+    if isinstance(cv, bool) or not isinstance(cv, (int, np.integer)) or cv < 2:
+        raise InputDataError(problem("adaptive_reject", f"cv = {cv!r}",
+                                     "pass the number of cross-validation folds, an integer >= 2",
+                                     key="cv"))
+    if n_epochs < MIN_EPOCHS:
+        raise InputDataError(problem(
+            "adaptive_reject", f"{n_epochs} epochs are too few to learn rejection thresholds "
+            f"by cross-validation (at least {MIN_EPOCHS})",
+            'use rejection.method = "fixed" for recordings this short', key="epochs_data"))
+    folds = min(int(cv), n_epochs // MIN_VALIDATION_EPOCHS)
+    if folds < cv:
+        log.info("Using %d cross-validation folds instead of %d for %d epochs", folds, cv, n_epochs)
+    return folds
+
+
+def _interpolate(analysis, info, interp, keep):
+    """Spline-interpolate each kept epoch's flagged channels in ``analysis`` (in place)."""
+    import mne
+
+    groups = {}
+    for e in np.flatnonzero(keep & interp.any(axis=1)):
+        groups.setdefault(tuple(np.flatnonzero(interp[e])), []).append(e)
+    for channels, epochs_idx in groups.items():
+        part = mne.EpochsArray(analysis[epochs_idx].copy(), info.copy(), verbose=False)
+        part.info["bads"] = [info["ch_names"][c] for c in channels]
+        part.interpolate_bads(reset_bads=True, mode="accurate", origin=INTERPOLATION_ORIGIN,
+                              verbose=False)
+        analysis[epochs_idx] = part.get_data(copy=True)
+    return len(groups)
+
+
+def _fit(detection, info, folds, random_state, n_jobs):
+    import mne
+    from autoreject import AutoReject
+
+    candidates = interpolation_candidates(info["nchan"])
+    model = AutoReject(n_interpolate=np.array(candidates), consensus=np.array(CONSENSUS_CANDIDATES),
+                       cv=folds, random_state=random_state, n_jobs=n_jobs, verbose=False)
+    from threadpoolctl import threadpool_limits  # installed with scikit-learn, autoreject's dependency
+
+    epochs = mne.EpochsArray(detection.copy(), info.copy(), verbose=False)
+    # The threshold search fits many tiny Gaussian processes; threaded BLAS only adds
+    # overhead there (measured: 10.5 s -> 7.4 s for 120 x 32 epochs on 2 cores).
+    with mne.utils.use_log_level("warning"), threadpool_limits(limits=1, user_api="blas"):
+        model.fit(epochs)
+        reject_log = model.get_reject_log(epochs)
+    return model, reject_log, candidates
+
+
+def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_state=0, n_jobs=1, cv=5):
+    """Learn per-channel thresholds on the detection data; drop and repair the analysis data.
+
+    Parameters
+    ----------
+    epochs_data : ndarray, shape (n_epochs, n_channels, n_times), V
+        Analysis trials (e.g. high-passed at 0.1 Hz). Not modified.
+    detection_data : ndarray, shape (n_epochs, n_channels, n_times), V
+        The same trials cut from a copy high-passed at 1 Hz; thresholds, interpolations
+        and drops are learnt on these. Not modified.
+    info : mne.Info
+        The EEG channels of the arrays, in their order, with positions. ``info["bads"]``
+        is ignored: every channel is judged.
+    max_cluster : int, default=3
+        An epoch whose largest group of neighbouring interpolated channels is larger is
+        dropped.
+    random_state : int, default=0
+        Seed of autoreject's threshold search.
+    n_jobs : int, default=1
+        Parallel jobs for autoreject, with scikit-learn's meaning.
+    cv : int, default=5
+        Cross-validation folds; fewer when there are less than 3 validation epochs per
+        fold (at least `MIN_EPOCHS` epochs are required).
+
+    Returns
+    -------
+    cleaned : ndarray, shape (n_kept, n_channels, n_times), V
+        Kept analysis epochs, flagged channels interpolated.
+    keep : ndarray of bool, shape (n_epochs,)
+    reasons : list of (str or None), length n_epochs
+        None for kept epochs, else ``"adaptive: ..."``.
+    record : dict
+        ``thresholds_uv`` (channel -> uV), ``n_interpolate``, ``consensus``,
+        ``n_interpolate_candidates``, ``consensus_candidates``, ``cv_folds``,
+        ``max_cluster``, ``adjacency``, ``n_epochs``, ``n_kept``, ``n_dropped``,
+        ``n_dropped_consensus``, ``n_dropped_cluster``, ``n_epochs_interpolated``,
+        ``interpolations_per_channel`` (channel -> kept epochs), ``cluster_counts``
+        (largest cluster size as text -> epochs, among those consensus kept).
+    """
+    analysis, detection = _check_arrays(epochs_data, detection_data, info)
+    info = _eeg_info(info)
+    if isinstance(max_cluster, bool) or not isinstance(max_cluster, (int, np.integer)) or max_cluster < 1:
+        raise InputDataError(problem("adaptive_reject", f"max_cluster = {max_cluster!r}",
+                                     "pass a positive number of channels, e.g. 3", key="max_cluster"))
+    n_epochs, n_channels = analysis.shape[:2]
+    folds = _folds(n_epochs, cv)
+    model, reject_log, candidates = _fit(detection, info, folds, random_state, n_jobs)
+    labels = np.nan_to_num(reject_log.labels, nan=0.0)
+    interp = labels == 2
+    n_bad = (labels >= 1).sum(axis=1)
+    by_consensus = np.asarray(reject_log.bad_epochs, dtype=bool)
+    adjacency, names, source = _adjacency(info)
+    clusters = interpolated_clusters(interp, adjacency)
+    by_cluster = ~by_consensus & (clusters > max_cluster)
+    keep = ~(by_consensus | by_cluster)
+    consensus = float(model.consensus_["eeg"])
+    needed = math.ceil(consensus * n_channels - 1e-9)
+    reasons = [None] * n_epochs
+    for e in np.flatnonzero(by_consensus):
+        reasons[e] = (f"adaptive: {n_bad[e]} of {n_channels} channels beyond their thresholds "
+                      f"(consensus drops at {needed} or more)")
+    for e in np.flatnonzero(by_cluster):
+        reasons[e] = f"adaptive: interpolated cluster of {clusters[e]} neighbouring channels > {max_cluster}"
+    _interpolate(analysis, info, interp, keep)
+    sizes, counts = np.unique(clusters[~by_consensus], return_counts=True)
+    record = {
+        "thresholds_uv": {n: float(model.threshes_[n]) * 1e6 for n in names},
+        "n_interpolate": int(model.n_interpolate_["eeg"]),
+        "consensus": consensus,
+        "n_interpolate_candidates": [int(c) for c in candidates],
+        "consensus_candidates": [float(c) for c in CONSENSUS_CANDIDATES],
+        "cv_folds": int(folds),
+        "max_cluster": int(max_cluster),
+        "adjacency": source,
+        "n_epochs": int(n_epochs),
+        "n_kept": int(keep.sum()),
+        "n_dropped": int((~keep).sum()),
+        "n_dropped_consensus": int(by_consensus.sum()),
+        "n_dropped_cluster": int(by_cluster.sum()),
+        "n_epochs_interpolated": int((interp[keep].any(axis=1)).sum()),
+        "interpolations_per_channel": {n: int(c) for n, c in zip(names, interp[keep].sum(axis=0))},
+        "cluster_counts": {str(int(s)): int(c) for s, c in zip(sizes, counts)},
+    }
+    log.info("Adaptive rejection dropped %d of %d epochs (%.0f %%): %d by consensus, %d by "
+             "interpolated cluster; %d kept epochs have interpolated channels",
+             record["n_dropped"], n_epochs, 100.0 * record["n_dropped"] / n_epochs,
+             record["n_dropped_consensus"], record["n_dropped_cluster"], record["n_epochs_interpolated"])
+    return analysis[keep], keep, reasons, record

@@ -1,0 +1,180 @@
+"""Mains (line) noise: how much there is, and removing it at the line frequency and harmonics.
+
+Two layers: `line_noise_ratio` works on plain arrays (V, Hz); `remove_line_noise` works on
+an mne Raw in place and returns what it did as plain data for the QC page and provenance.
+"""
+from __future__ import annotations
+
+import logging
+
+import numpy as np
+import scipy.signal
+
+from .errors import DefinitionError, InputDataError, did_you_mean, problem
+
+__all__ = ["METHODS", "line_noise_ratio", "line_harmonics", "remove_line_noise"]
+
+log = logging.getLogger(__name__)
+
+#: Ways to remove line noise: FIR notches, mne's sinusoid fitting, or nothing.
+METHODS = ("notch", "fit", "none")
+
+#: Welch segment lengths tried for `line_noise_ratio`, s: 4 s gives 0.25 Hz bins and is
+#: used when the data hold at least two of them; otherwise 2 s (0.5 Hz bins).
+_SEGMENTS = (4.0, 2.0)
+
+#: mne's default FIR notch transition band, Hz; a harmonic needs this much room below
+#: Nyquist for its notch to be designed.
+_TRANSITION = 1.0
+
+
+def line_noise_ratio(x, sfreq, frequency, *, bandwidth=1.0, neighbours=(2.0, 5.0)):
+    """Power at the line frequency relative to the neighbouring frequencies, per channel.
+
+    Mean Welch power density in ``[frequency - bandwidth/2, frequency + bandwidth/2]``
+    divided by the mean density in the bands ``neighbours[0]`` to ``neighbours[1]`` Hz
+    on either side of it. About 1 for data without line noise (a smooth spectrum);
+    large when a mains sinusoid stands out.
+
+    Parameters
+    ----------
+    x : ndarray, shape (n_channels, n_times), V
+        Continuous data.
+    sfreq : float, Hz
+        Sampling rate.
+    frequency : float, Hz
+        Line frequency (50 or 60 Hz) or one of its harmonics.
+    bandwidth : float, default=1.0
+        Width of the band centred on ``frequency``, Hz.
+    neighbours : (float, float), default=(2.0, 5.0)
+        Inner and outer distance of the reference bands from ``frequency``, Hz.
+
+    Returns
+    -------
+    ratio : ndarray, shape (n_channels,)
+        Dimensionless; a channel without any power in the reference bands gives inf
+        (or nan when it is all zeros).
+
+    Notes
+    -----
+    Welch segments (Hann, 50 % overlap, `scipy.signal.welch`) are 4 s long (0.25 Hz bins)
+    when the data hold at least two of them and 2 s (0.5 Hz bins) otherwise.
+    """
+    where = "line_noise_ratio"
+    x = np.atleast_2d(np.asarray(x, dtype=float))
+    sfreq, frequency, bandwidth = float(sfreq), float(frequency), float(bandwidth)
+    inner, outer = (float(v) for v in neighbours)
+    if not (np.isfinite(sfreq) and sfreq > 0):
+        raise DefinitionError(problem(where, f"sfreq = {sfreq} Hz is not positive", "pass the sampling rate in Hz",
+                                      key="sfreq"))
+    if not (bandwidth > 0 and bandwidth / 2 < inner < outer):
+        raise DefinitionError(problem(where, f"bandwidth = {bandwidth:g} Hz and neighbours = ({inner:g}, {outer:g}) Hz "
+                                      "do not give a band inside a ring of neighbours",
+                                      "choose 0 < bandwidth/2 < neighbours[0] < neighbours[1]", key="neighbours"))
+    if not 0 < frequency - outer or not frequency + bandwidth / 2 < sfreq / 2:
+        raise InputDataError(problem(where, f"frequency = {frequency:g} Hz with neighbours up to {outer:g} Hz away "
+                                     f"does not fit between 0 and Nyquist ({sfreq / 2:g} Hz)",
+                                     "measure a frequency inside the recorded band", key="frequency"))
+    nperseg = _segment_samples(x.shape[-1], sfreq, where)
+    freqs, psd = scipy.signal.welch(x, fs=sfreq, window="hann", nperseg=nperseg, noverlap=nperseg // 2,
+                                    detrend="constant", scaling="density", axis=-1)
+    distance = np.abs(freqs - frequency)
+    slack = 1e-9 * sfreq  # bins on an edge count as inside despite rounding of the grid
+    band = distance <= bandwidth / 2 + slack
+    ring = (distance >= inner - slack) & (distance <= outer + slack) & (freqs < sfreq / 2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return psd[:, band].mean(axis=-1) / psd[:, ring].mean(axis=-1)
+
+
+def _segment_samples(n_times, sfreq, where):
+    for segment in _SEGMENTS:
+        nperseg = int(round(segment * sfreq))
+        if n_times >= 2 * nperseg or segment == _SEGMENTS[-1] and n_times >= nperseg:
+            return nperseg
+    raise InputDataError(problem(where, f"the data last {n_times / sfreq:g} s, shorter than one "
+                                 f"{_SEGMENTS[-1]:g} s spectrum segment", "measure line noise on longer data"))
+
+
+def line_harmonics(frequency, sfreq, lowpass=None):
+    """The line frequency and its harmonics that lie in the pass band.
+
+    Parameters
+    ----------
+    frequency : float, Hz
+        Line frequency.
+    sfreq : float, Hz
+        Sampling rate.
+    lowpass : float or None, Hz, default=None
+        Upper pass-band edge (``raw.info["lowpass"]``); None means Nyquist.
+
+    Returns
+    -------
+    freqs : list of float, Hz
+        ``k * frequency`` for k = 1, 2, ... that are at most ``lowpass`` and at least
+        one transition band (1 Hz) below Nyquist, so a notch can be designed there.
+    """
+    nyquist = sfreq / 2.0
+    edge = nyquist if lowpass is None else min(float(lowpass), nyquist)
+    out = []
+    k = 1
+    while k * frequency <= edge + 1e-9 and k * frequency < nyquist - _TRANSITION:
+        out.append(float(k * frequency))
+        k += 1
+    return out
+
+
+def remove_line_noise(raw, frequency, *, method="notch", picks="eeg"):
+    """Remove mains noise from ``raw`` in place; returns the record of what was done.
+
+    Parameters
+    ----------
+    raw : mne.io.BaseRaw
+        Preloaded continuous data (the task's own copy: it is modified).
+    frequency : float, Hz
+        The site's line frequency (50 or 60 Hz).
+    method : {"notch", "fit", "none"}, default="notch"
+        ``"notch"``: zero-phase FIR notches (mne's ``raw.notch_filter`` defaults: stop band
+        ``f/200`` Hz wide, 1 Hz transition, firwin/Hamming) at the line frequency and every
+        harmonic inside the pass band (`line_harmonics`). ``"fit"``: mne's multitaper
+        sinusoid fitting and subtraction (``method="spectrum_fit"``, 10 s windows) at the
+        same frequencies, which leaves the rest of the spectrum untouched. ``"none"``:
+        the data are not changed.
+    picks : str or list, default="eeg"
+        Channels to clean and to measure, as mne accepts them (e.g. ``["eeg", "eog"]``).
+
+    Returns
+    -------
+    record : dict
+        ``method``; ``line_frequency_hz``; ``frequencies_hz`` (list of the frequencies
+        removed, Hz, empty for "none"); ``ratio_before`` and ``ratio_after``: median over
+        the picked channels of `line_noise_ratio` at the line frequency, before and after
+        (None when the line frequency is too close to Nyquist to measure).
+    """
+    where = "remove_line_noise"
+    if method not in METHODS:
+        raise DefinitionError(problem(where, f'method "{method}" is not known{did_you_mean(method, METHODS)}',
+                                      f"use one of {', '.join(METHODS)}", key="method"))
+    sfreq = float(raw.info["sfreq"])
+    freqs = [] if method == "none" else line_harmonics(frequency, sfreq, raw.info["lowpass"])
+    record = {"method": method, "line_frequency_hz": float(frequency), "frequencies_hz": freqs,
+              "ratio_before": _median_ratio(raw, frequency, picks)}
+    if freqs and method == "notch":
+        raw.notch_filter(freqs, picks=picks, method="fir", phase="zero", fir_design="firwin", verbose="error")
+    elif freqs and method == "fit":
+        raw.notch_filter(freqs, picks=picks, method="spectrum_fit", verbose="error")
+    record["ratio_after"] = _median_ratio(raw, frequency, picks) if freqs else record["ratio_before"]
+    log.info("Line noise (%s at %s Hz): ratio %s -> %s", method, ", ".join(f"{f:g}" for f in freqs) or "-",
+             _fmt(record["ratio_before"]), _fmt(record["ratio_after"]))
+    return record
+
+
+def _median_ratio(raw, frequency, picks):
+    sfreq = float(raw.info["sfreq"])
+    if frequency + 5.0 >= sfreq / 2 or frequency <= 5.0:
+        return None
+    ratio = line_noise_ratio(raw.get_data(picks=picks), sfreq, frequency)
+    return float(np.median(ratio))
+
+
+def _fmt(value):
+    return "n/a" if value is None else f"{value:.3g}"

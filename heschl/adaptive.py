@@ -115,7 +115,8 @@ def _adjacency(info):
         dense = sparse.csr_array(found).toarray().astype(bool)[np.ix_(order, order)]
         source = "mne find_ch_adjacency"
     except Exception as exc:  # triangulation fails on coplanar or too few positions
-        log.info("Adjacency from the montage failed (%s); using the distance rule", exc)
+        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        log.info("Adjacency from the montage failed (%s); using the distance rule", first)
         dense = _distance_adjacency(pos)
         source = f"distance < {NEIGHBOUR_DISTANCE_RATIO:g} x median nearest-neighbour distance"
     np.fill_diagonal(dense, False)
@@ -125,8 +126,8 @@ def _adjacency(info):
 def channel_adjacency(info):
     """Which EEG channels are neighbours on the scalp.
 
-    From ``mne.channels.find_ch_adjacency(info, "eeg")`` (a template for known caps, else
-    a Delaunay triangulation of the positions). If that fails (e.g. positions on one
+    From ``mne.channels.find_ch_adjacency(info, "eeg")`` (for EEG, a Delaunay
+    triangulation of the positions). If that fails (e.g. positions on one
     plane, or too few channels to triangulate), channels closer than 1.5 x the median
     nearest-neighbour distance are neighbours (`NEIGHBOUR_DISTANCE_RATIO`).
 
@@ -234,6 +235,41 @@ def _folds(n_epochs, cv):
     return folds
 
 
+def _decisions(labels, bad_epochs, clusters, max_cluster, consensus):
+    """Keep mask and reasons from autoreject's labels and drops plus the cluster rule.
+
+    Parameters
+    ----------
+    labels : ndarray, shape (n_epochs, n_channels)
+        autoreject's reject-log labels: 0 good, 1 beyond its threshold, 2 interpolated.
+    bad_epochs : ndarray of bool, shape (n_epochs,)
+        Epochs autoreject drops (consensus reached).
+    clusters : ndarray of int, shape (n_epochs,)
+        Largest group of neighbouring interpolated channels (`interpolated_clusters`).
+    max_cluster : int
+    consensus : float
+        The fraction of channels that drops an epoch.
+
+    Returns
+    -------
+    keep : ndarray of bool, shape (n_epochs,)
+    reasons : list of (str or None)
+    by_consensus : ndarray of bool, shape (n_epochs,)
+    """
+    n_channels = labels.shape[1]
+    n_bad = (labels >= 1).sum(axis=1)
+    needed = math.ceil(consensus * n_channels - 1e-9)
+    by_consensus = np.asarray(bad_epochs, dtype=bool)
+    by_cluster = ~by_consensus & (clusters > max_cluster)
+    reasons = [None] * len(labels)
+    for e in np.flatnonzero(by_consensus):
+        reasons[e] = (f"adaptive: {n_bad[e]} of {n_channels} channels beyond their thresholds "
+                      f"(consensus drops at {needed} or more)")
+    for e in np.flatnonzero(by_cluster):
+        reasons[e] = f"adaptive: interpolated cluster of {clusters[e]} neighbouring channels > {max_cluster}"
+    return ~(by_consensus | by_cluster), reasons, by_consensus
+
+
 def _interpolate(analysis, info, interp, keep):
     """Spline-interpolate each kept epoch's flagged channels in ``analysis`` (in place)."""
     import mne
@@ -251,21 +287,48 @@ def _interpolate(analysis, info, interp, keep):
 
 
 def _fit(detection, info, folds, random_state, n_jobs):
+    """Fit AutoReject on the detection epochs; return it, its reject log, the candidates."""
     import mne
     from autoreject import AutoReject
+    from threadpoolctl import threadpool_limits  # installed with scikit-learn (autoreject's)
 
     candidates = interpolation_candidates(info["nchan"])
+    # Hyper-parameters are passed explicitly: AutoReject fills in and overwrites its own
+    # when given None, so what it chose is read from its fitted attributes only.
     model = AutoReject(n_interpolate=np.array(candidates), consensus=np.array(CONSENSUS_CANDIDATES),
                        cv=folds, random_state=random_state, n_jobs=n_jobs, verbose=False)
-    from threadpoolctl import threadpool_limits  # installed with scikit-learn, autoreject's dependency
-
-    epochs = mne.EpochsArray(detection.copy(), info.copy(), verbose=False)
+    epochs = mne.EpochsArray(detection.copy(), info.copy(), verbose=False)  # keeps the array it gets
     # The threshold search fits many tiny Gaussian processes; threaded BLAS only adds
     # overhead there (measured: 10.5 s -> 7.4 s for 120 x 32 epochs on 2 cores).
     with mne.utils.use_log_level("warning"), threadpool_limits(limits=1, user_api="blas"):
         model.fit(epochs)
         reject_log = model.get_reject_log(epochs)
     return model, reject_log, candidates
+
+
+def _record(model, names, candidates, folds, max_cluster, source, keep, by_consensus, interp, clusters):
+    """What was learnt and decided, as JSON-ready data for the QC page."""
+    sizes, counts = np.unique(clusters[~by_consensus], return_counts=True)
+    return {
+        "thresholds_uv": {n: float(model.threshes_[n]) * 1e6 for n in names},
+        "n_interpolate": int(model.n_interpolate_["eeg"]),
+        "consensus": float(model.consensus_["eeg"]),
+        "n_interpolate_candidates": [int(c) for c in candidates],
+        "consensus_candidates": [float(c) for c in CONSENSUS_CANDIDATES],
+        "cv_folds": int(folds),
+        "max_cluster": int(max_cluster),
+        "adjacency": source,
+        "n_epochs": int(len(keep)),
+        "n_kept": int(keep.sum()),
+        "n_dropped": int((~keep).sum()),
+        "n_dropped_consensus": int(by_consensus.sum()),
+        "n_dropped_cluster": int((~keep & ~by_consensus).sum()),
+        "n_epochs_interpolated": int((interp[keep].any(axis=1)).sum()),
+        "interpolations_per_channel": {n: int(c) for n, c in zip(names, interp[keep].sum(axis=0))},
+        "cluster_counts": {str(int(s)): int(c) for s, c in zip(sizes, counts)},
+        "interpolated": [[names[c] for c in np.flatnonzero(row)] if k else []
+                         for row, k in zip(interp, keep)],
+    }
 
 
 def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_state=0, n_jobs=1, cv=5):
@@ -305,52 +368,26 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
         ``max_cluster``, ``adjacency``, ``n_epochs``, ``n_kept``, ``n_dropped``,
         ``n_dropped_consensus``, ``n_dropped_cluster``, ``n_epochs_interpolated``,
         ``interpolations_per_channel`` (channel -> kept epochs), ``cluster_counts``
-        (largest cluster size as text -> epochs, among those consensus kept).
+        (largest cluster size as text -> epochs, among those consensus kept),
+        ``interpolated`` (per epoch, the channels interpolated in it; empty if dropped).
     """
     analysis, detection = _check_arrays(epochs_data, detection_data, info)
     info = _eeg_info(info)
     if isinstance(max_cluster, bool) or not isinstance(max_cluster, (int, np.integer)) or max_cluster < 1:
         raise InputDataError(problem("adaptive_reject", f"max_cluster = {max_cluster!r}",
                                      "pass a positive number of channels, e.g. 3", key="max_cluster"))
-    n_epochs, n_channels = analysis.shape[:2]
+    n_epochs = len(analysis)
     folds = _folds(n_epochs, cv)
     model, reject_log, candidates = _fit(detection, info, folds, random_state, n_jobs)
     labels = np.nan_to_num(reject_log.labels, nan=0.0)
     interp = labels == 2
-    n_bad = (labels >= 1).sum(axis=1)
-    by_consensus = np.asarray(reject_log.bad_epochs, dtype=bool)
     adjacency, names, source = _adjacency(info)
     clusters = interpolated_clusters(interp, adjacency)
-    by_cluster = ~by_consensus & (clusters > max_cluster)
-    keep = ~(by_consensus | by_cluster)
     consensus = float(model.consensus_["eeg"])
-    needed = math.ceil(consensus * n_channels - 1e-9)
-    reasons = [None] * n_epochs
-    for e in np.flatnonzero(by_consensus):
-        reasons[e] = (f"adaptive: {n_bad[e]} of {n_channels} channels beyond their thresholds "
-                      f"(consensus drops at {needed} or more)")
-    for e in np.flatnonzero(by_cluster):
-        reasons[e] = f"adaptive: interpolated cluster of {clusters[e]} neighbouring channels > {max_cluster}"
+    keep, reasons, by_consensus = _decisions(labels, reject_log.bad_epochs, clusters, max_cluster, consensus)
     _interpolate(analysis, info, interp, keep)
-    sizes, counts = np.unique(clusters[~by_consensus], return_counts=True)
-    record = {
-        "thresholds_uv": {n: float(model.threshes_[n]) * 1e6 for n in names},
-        "n_interpolate": int(model.n_interpolate_["eeg"]),
-        "consensus": consensus,
-        "n_interpolate_candidates": [int(c) for c in candidates],
-        "consensus_candidates": [float(c) for c in CONSENSUS_CANDIDATES],
-        "cv_folds": int(folds),
-        "max_cluster": int(max_cluster),
-        "adjacency": source,
-        "n_epochs": int(n_epochs),
-        "n_kept": int(keep.sum()),
-        "n_dropped": int((~keep).sum()),
-        "n_dropped_consensus": int(by_consensus.sum()),
-        "n_dropped_cluster": int(by_cluster.sum()),
-        "n_epochs_interpolated": int((interp[keep].any(axis=1)).sum()),
-        "interpolations_per_channel": {n: int(c) for n, c in zip(names, interp[keep].sum(axis=0))},
-        "cluster_counts": {str(int(s)): int(c) for s, c in zip(sizes, counts)},
-    }
+    record = _record(model, names, candidates, folds, max_cluster, source, keep, by_consensus, interp,
+                     clusters)
     log.info("Adaptive rejection dropped %d of %d epochs (%.0f %%): %d by consensus, %d by "
              "interpolated cluster; %d kept epochs have interpolated channels",
              record["n_dropped"], n_epochs, 100.0 * record["n_dropped"] / n_epochs,

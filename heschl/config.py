@@ -35,7 +35,9 @@ _REQUIRED = object()
 DESIGNS = ("event-related", "steady-state", "resting")
 REFERENCE_WORDS = ("average", "as-recorded", "linked-mastoids")
 RECORDING_REFERENCE_WORDS = ("average", "linked-mastoids", "unknown")
-REJECTION_METHODS = ("fixed", "none")
+REJECTION_METHODS = ("adaptive", "fixed", "none")
+LINE_NOISE_METHODS = ("notch", "fit", "none")
+OCULAR_METHODS = ("regression", "ica", "none")
 BAD_CHANNEL_POLICIES = ("detect", "keep")
 POLARITIES = ("negative", "positive")
 
@@ -73,8 +75,10 @@ class Contrast:
 class Cleaning:
     sampling_rate: float          # Hz
     pass_band: tuple              # (low, high) Hz
-    reference: object             # "average" | "as-recorded" | tuple of channel names
+    reference: object             # "average" | "linked-mastoids" | "as-recorded" | tuple of channel names
     bad_channels: str             # "detect" | "keep"
+    line_noise: str = "notch"     # "notch" | "fit" | "none"
+    ocular: str = "regression"    # "regression" | "ica" | "none"
 
 
 @dataclass(frozen=True)
@@ -102,6 +106,9 @@ class Rejection:
     method: str
     peak_to_peak: object          # V or None
     min_trials: dict
+    detection_high_pass: float = 1.0   # Hz, adaptive: decisions learned on a copy high-passed here
+    max_cluster: int = 3               # adaptive: largest group of neighbouring interpolated channels
+    equalise: bool = False             # equalise kept trial counts across conditions
 
 
 @dataclass(frozen=True)
@@ -432,7 +439,8 @@ def _contrasts(top, conditions):
 
 
 def _cleaning(top):
-    section = top.sub("cleaning", {"sampling_rate", "pass_band", "reference", "bad_channels"})
+    section = top.sub("cleaning", {"sampling_rate", "pass_band", "reference", "bad_channels", "line_noise",
+                                   "ocular"})
     rate = section.number("sampling_rate", unit="Hz", low=50.0)
     band = section.pair("pass_band", unit="Hz", low=0.0)
     if band[0] <= 0:
@@ -452,7 +460,9 @@ def _cleaning(top):
     elif ref not in REFERENCE_WORDS:
         ref = (ref,)
     policy = section.string("bad_channels", default="detect", choices=BAD_CHANNEL_POLICIES)
-    return Cleaning(rate, band, ref, policy)
+    line = section.string("line_noise", default="notch", choices=LINE_NOISE_METHODS)
+    ocular = section.string("ocular", default="regression", choices=OCULAR_METHODS)
+    return Cleaning(rate, band, ref, policy, line, ocular)
 
 
 def _timing(top, design, conditions):
@@ -489,7 +499,8 @@ def _timing(top, design, conditions):
 
 
 def _rejection(top, conditions):
-    section = top.sub("rejection", {"method", "peak_to_peak_uv", "min_trials"})
+    section = top.sub("rejection", {"method", "peak_to_peak_uv", "min_trials", "detection_high_pass",
+                                    "max_cluster", "equalise"})
     method = section.string("method", choices=REJECTION_METHODS)
     ptp = None
     if method == "fixed":
@@ -497,9 +508,18 @@ def _rejection(top, conditions):
     elif "peak_to_peak_uv" in section.data:
         section.fail("peak_to_peak_uv", f'is only used with method = "fixed", not "{method}"',
                      "remove it or set method = \"fixed\"")
+    for key in ("detection_high_pass", "max_cluster"):
+        if key in section.data and method != "adaptive":
+            section.fail(key, f'is only used with method = "adaptive", not "{method}"',
+                         "remove it or set method = \"adaptive\"")
+    high_pass = section.number("detection_high_pass", default=1.0, unit="Hz", low=0.0, strict_low=True, high=10.0)
+    max_cluster = section.integer("max_cluster", default=3, low=1)
+    equalise = section.raw("equalise", default=False)
+    if not isinstance(equalise, bool):
+        section.fail("equalise", f"expected true or false, got {_show(equalise)}", "write equalise = true or false")
     counts = section.sub("min_trials", set(conditions), default={})
     min_trials = {c: counts.integer(c, low=1) for c in counts.data}
-    return Rejection(method, ptp, min_trials)
+    return Rejection(method, ptp, min_trials, high_pass, max_cluster, equalise)
 
 
 def _stimulation(top, cleaning):

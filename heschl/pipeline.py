@@ -174,7 +174,7 @@ def process_recording(study, recording):
     cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
                      restored=harmonised["restored_reference"])
     clock.lap("clean")
-    trials_data, times, entries, ch_names = _trials(raw, markers, paradigm)
+    trials_data, times, entries, ch_names, rejection = _trials(raw, markers, paradigm)
     clock.lap("segment and reject")
     source = _source(trials_data, times, ch_names, raw.info["sfreq"], paradigm)
     rows = []
@@ -193,18 +193,12 @@ def process_recording(study, recording):
         "key": input_key(hashes, definitions),
         "definitions": definitions,
         "steps": {"harmonise": harmonised, "clean": cleaning,
-                  "rejection": {"method": paradigm.rejection.method,
-                                "peak_to_peak_uv": _uv(paradigm.rejection.peak_to_peak),
-                                "trials": counts},
+                  "rejection": dict(rejection, trials=counts),
                   "trial_log": entries},
         "versions": package_versions(),
         "timings_s": clock.times,
     }
     return {"rows": rows, "qc": qc, "provenance": provenance, "curves": curves}
-
-
-def _uv(value):
-    return None if value is None else round(value * 1e6, 6)
 
 
 def _display(path):
@@ -221,7 +215,8 @@ def _trials(raw, markers, paradigm):
 
     import mne
 
-    ch_names = [raw.ch_names[i] for i in mne.pick_types(raw.info, eeg=True, meg=False)]
+    picks = mne.pick_types(raw.info, eeg=True, meg=False)
+    ch_names = [raw.ch_names[i] for i in picks]
     if paradigm.epochs is not None:
         plan = epoch_plan(markers, paradigm)
         window, baseline = paradigm.epochs.window, paradigm.epochs.baseline
@@ -230,8 +225,15 @@ def _trials(raw, markers, paradigm):
         plan = segment_plan(markers, paradigm, duration)
         window, baseline = (0.0, paradigm.segments.length - 1.0 / raw.info["sfreq"]), None
     x, times, entries = cut(raw, plan, window)
-    data, entries = reject(x, times, entries, ch_names, paradigm, baseline)
-    return data, times, entries, ch_names
+    detection, info = None, None
+    if paradigm.rejection.method == "adaptive":
+        # Learn rejection on a copy high-passed for detection: slow ERP components kept by
+        # a 0.1 Hz analysis high-pass would otherwise inflate the thresholds' rejections.
+        copy = raw.copy().filter(paradigm.rejection.detection_high_pass, None, picks=picks, verbose="error")
+        detection, _, _ = cut(copy, plan, window)
+        info = mne.pick_info(raw.info, picks)
+    data, entries, record = reject(x, times, entries, ch_names, paradigm, baseline, detection, info)
+    return data, times, entries, ch_names, record
 
 
 def _source(data, times, ch_names, sfreq, paradigm):

@@ -112,22 +112,42 @@ def cut(raw, plan, window):
     return x, times, entries
 
 
-def reject(x, times, entries, ch_names, paradigm, baseline=None):
+MIN_ADAPTIVE_TRIALS = 10  # cross-validated thresholds need at least this many trials
+
+
+def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None, info=None):
     """Baseline-correct, apply the rejection policy, and split kept trials by condition.
+
+    Parameters
+    ----------
+    x : ndarray, shape (n_cut, n_channels, n_times), V
+        Analysis data of the cut trials.
+    times : ndarray, s
+    entries : list of dict
+        The trial log from :func:`cut`.
+    ch_names : list of str
+    paradigm : heschl.config.Paradigm
+    baseline : (float, float) or None, s
+    detection : ndarray like ``x`` or None
+        The same trials from a copy high-passed for detection (adaptive method only):
+        thresholds are learned there and the decisions applied to ``x``.
+    info : mne.Info or None
+        Channel positions for interpolation (adaptive method only).
 
     Returns
     -------
     arrays : dict of str -> ndarray, shape (n_kept, n_channels, n_times), V
     entries : list of dict
         The log with each trial's fate filled in.
+    record : dict
+        What the rejection method decided overall.
     """
     if baseline is not None and len(x):
         sel = (times >= baseline[0]) & (times <= baseline[1])
         x = x - x[:, :, sel].mean(axis=2, keepdims=True)
-    keep = np.ones(len(x), dtype=bool)
-    reasons = [None] * len(x)
-    if paradigm.rejection.method == "fixed" and len(x):
-        keep, reasons = fixed_threshold(peak_to_peak(x), paradigm.rejection.peak_to_peak, ch_names)
+    keep, reasons, record = _decide(x, detection, ch_names, paradigm, info)
+    if record.get("interpolated_epochs") is not None:
+        x = record.pop("interpolated_epochs")
     data = {c: [] for c in paradigm.conditions}
     for entry in entries:
         idx = entry.get("index")
@@ -135,8 +155,57 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None):
             continue
         if keep[idx]:
             entry["kept"] = True
+            if record.get("interpolated"):
+                entry["interpolated"] = record["interpolated"][idx]
             data[entry["condition"]].append(x[idx])
         else:
-            entry["reason"] = "peak-to-peak: " + "; ".join(r.replace("peak-to-peak ", "", 1) for r in reasons[idx])
+            entry["reason"] = reasons[idx]
+    if paradigm.rejection.equalise:
+        data = _equalise(data, entries)
     arrays = {c: (np.stack(v) if v else np.empty((0,) + x.shape[1:])) for c, v in data.items()}
-    return arrays, entries
+    return arrays, entries, record
+
+
+def _decide(x, detection, ch_names, paradigm, info):
+    """keep mask, reason per trial, and a record, by the paradigm's method."""
+    method = paradigm.rejection.method
+    keep = np.ones(len(x), dtype=bool)
+    reasons = [None] * len(x)
+    if method == "fixed" and len(x):
+        keep, found = fixed_threshold(peak_to_peak(x), paradigm.rejection.peak_to_peak, ch_names)
+        reasons = ["peak-to-peak: " + "; ".join(r.replace("peak-to-peak ", "", 1) for r in found[i])
+                   for i in range(len(x))]
+        return keep, reasons, {"method": "fixed", "peak_to_peak_uv": paradigm.rejection.peak_to_peak * 1e6}
+    if method == "adaptive":
+        if len(x) < MIN_ADAPTIVE_TRIALS:
+            return keep, reasons, {"method": "adaptive", "skipped": f"only {len(x)} trials; "
+                                   f"adaptive thresholds need at least {MIN_ADAPTIVE_TRIALS}"}
+        from .adaptive import adaptive_reject
+
+        cleaned, keep, found, record = adaptive_reject(x, detection, info,
+                                                       max_cluster=paradigm.rejection.max_cluster,
+                                                       random_state=0, n_jobs=1)
+        full = x.copy()
+        full[keep] = cleaned
+        record = dict(record, method="adaptive", interpolated_epochs=full)
+        return keep, list(found), record
+    return keep, reasons, {"method": "none"}
+
+
+def _equalise(data, entries):
+    """Keep the same number of trials in every condition: evenly spaced over the recording.
+
+    Evenly spaced selection keeps the trials spread over time, so slow changes over the
+    session weigh the same in every condition (deterministic; no random draw).
+    """
+    target = min(len(v) for v in data.values())
+    kept = {c: [e for e in entries if e["kept"] and e["condition"] == c] for c in data}
+    for c, trials in data.items():
+        if len(trials) > target:
+            chosen = set(np.round(np.linspace(0, len(trials) - 1, target)).astype(int)) if target else set()
+            for i, entry in enumerate(kept[c]):
+                if i not in chosen:
+                    entry["kept"] = False
+                    entry["reason"] = f"equalised: {c} reduced to {target} trials"
+            data[c] = [t for i, t in enumerate(trials) if i in chosen]
+    return data

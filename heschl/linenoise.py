@@ -23,12 +23,15 @@ METHODS = ("notch", "fit", "none")
 #: used when the data hold at least two of them; otherwise 2 s (0.5 Hz bins).
 _SEGMENTS = (4.0, 2.0)
 
+#: Default inner and outer distance of the reference bands from the line frequency, Hz.
+_NEIGHBOURS = (2.0, 5.0)
+
 #: mne's default FIR notch transition band, Hz; a harmonic needs this much room below
 #: Nyquist for its notch to be designed.
 _TRANSITION = 1.0
 
 
-def line_noise_ratio(x, sfreq, frequency, *, bandwidth=1.0, neighbours=(2.0, 5.0)):
+def line_noise_ratio(x, sfreq, frequency, *, bandwidth=1.0, neighbours=_NEIGHBOURS):
     """Power at the line frequency relative to the neighbouring frequencies, per channel.
 
     Mean Welch power density in ``[frequency - bandwidth/2, frequency + bandwidth/2]``
@@ -71,7 +74,7 @@ def line_noise_ratio(x, sfreq, frequency, *, bandwidth=1.0, neighbours=(2.0, 5.0
         raise DefinitionError(problem(where, f"bandwidth = {bandwidth:g} Hz and neighbours = ({inner:g}, {outer:g}) Hz "
                                       "do not give a band inside a ring of neighbours",
                                       "choose 0 < bandwidth/2 < neighbours[0] < neighbours[1]", key="neighbours"))
-    if not 0 < frequency - outer or not frequency + bandwidth / 2 < sfreq / 2:
+    if not (0 < frequency - outer and frequency + outer < sfreq / 2):
         raise InputDataError(problem(where, f"frequency = {frequency:g} Hz with neighbours up to {outer:g} Hz away "
                                      f"does not fit between 0 and Nyquist ({sfreq / 2:g} Hz)",
                                      "measure a frequency inside the recorded band", key="frequency"))
@@ -81,7 +84,7 @@ def line_noise_ratio(x, sfreq, frequency, *, bandwidth=1.0, neighbours=(2.0, 5.0
     distance = np.abs(freqs - frequency)
     slack = 1e-9 * sfreq  # bins on an edge count as inside despite rounding of the grid
     band = distance <= bandwidth / 2 + slack
-    ring = (distance >= inner - slack) & (distance <= outer + slack) & (freqs < sfreq / 2)
+    ring = (distance >= inner - slack) & (distance <= outer + slack)
     with np.errstate(divide="ignore", invalid="ignore"):
         return psd[:, band].mean(axis=-1) / psd[:, ring].mean(axis=-1)
 
@@ -148,7 +151,7 @@ def remove_line_noise(raw, frequency, *, method="notch", picks="eeg"):
         ``method``; ``line_frequency_hz``; ``frequencies_hz`` (list of the frequencies
         removed, Hz, empty for "none"); ``ratio_before`` and ``ratio_after``: median over
         the picked channels of `line_noise_ratio` at the line frequency, before and after
-        (None when the line frequency is too close to Nyquist to measure).
+        (None when the neighbouring bands of the line frequency do not fit below Nyquist).
     """
     where = "remove_line_noise"
     if method not in METHODS:
@@ -170,9 +173,9 @@ def remove_line_noise(raw, frequency, *, method="notch", picks="eeg"):
 
 def _median_ratio(raw, frequency, picks):
     sfreq = float(raw.info["sfreq"])
-    if frequency + 5.0 >= sfreq / 2 or frequency <= 5.0:
+    if not 0 < frequency - _NEIGHBOURS[1] < frequency + _NEIGHBOURS[1] < sfreq / 2:
         return None
-    ratio = line_noise_ratio(raw.get_data(picks=picks), sfreq, frequency)
+    ratio = line_noise_ratio(raw.get_data(picks=picks), sfreq, frequency, neighbours=_NEIGHBOURS)
     return float(np.median(ratio))
 
 

@@ -19,7 +19,7 @@ import numpy as np
 
 from .errors import DefinitionError, InputDataError, ProcessingError, did_you_mean, problem
 
-__all__ = ["METHODS", "NO_SOURCE", "OcularCorrection", "eog_correlation", "max_abs_correlation"]
+__all__ = ["METHODS", "NO_SOURCE", "OcularCorrection", "eog_correlation", "max_abs_correlation", "quiet_samples"]
 
 log = logging.getLogger(__name__)
 
@@ -30,6 +30,9 @@ METHODS = ("regression", "ica", "none")
 NO_SOURCE = "no EOG channel and no frontal channel to stand in"
 
 _WHERE = "OcularCorrection"
+
+#: Least data, s, left after ``fit_reject`` for a fit.
+_MIN_FIT_S = 10.0
 
 #: FastICA iteration limit (mne's "auto" value for fastica).
 _MAX_ITER = 1000
@@ -67,6 +70,13 @@ class OcularCorrection:
         and correlations measured; ICA works better on data high-passed at about 1 Hz
         (Winkler, Debener, Mueller & Tangermann 2015, EMBC 4101-4105). Corrections are
         applied to the data as given.
+    fit_reject : float or None, default=1e-3
+        Peak-to-peak amplitude, V, above which a 1 s window of the high-passed copy (on any
+        EEG or EOG channel used) is left out of the fit and of the residual metric,
+        together with half the high-pass filter's length on either side (its ringing).
+        Amplifier saturation and movement transients (millivolts) would otherwise dominate
+        both; blinks and saccades stay well below 1 mV (a few hundred uV, common practice).
+        None keeps every window. At least 10 s must remain, else the step is skipped.
 
     Attributes
     ----------
@@ -77,9 +87,15 @@ class OcularCorrection:
         stand-in proxy.
     stand_ins_used_ : bool
     corrected_channels_ : list of str
-        EEG channels the correction changes.
+        EEG channels the correction changes: with ``"regression"`` every EEG channel that
+        is not itself a source, with ``"ica"`` every EEG channel.
+    measured_channels_ : list of str
+        EEG channels that are not sources, over which ``residual_correlation_`` is taken.
     skipped_reason_ : str or None
-        Why nothing was learned (`NO_SOURCE`), else None.
+        Why nothing was learned (`NO_SOURCE`, too little data below ``fit_reject``, or no
+        EEG channel besides the sources), else None.
+    fit_excluded_s_ : float
+        Seconds of data left out of the fit by ``fit_reject``.
     coef_ : ndarray, shape (n_corrected, n_sources), or None
         Regression propagation factors (V per V) for ``"regression"``.
     ica_ : mne.preprocessing.ICA or None
@@ -91,22 +107,33 @@ class OcularCorrection:
         ``{"component": int, "correlation": float, "source": str}`` for each removed ICA
         component (signed correlation with the source it matched best).
     residual_correlation_ : dict or None
-        ``{"before": float, "after": float}``: `eog_correlation` on the fitted data, over
-        ``corrected_channels_``, before and after correction.
+        ``{"before": float, "after": float, "by_source": {label: {"before", "after"}}}``:
+        `eog_correlation` on the fitted data (windows above ``fit_reject`` left out), over
+        ``measured_channels_``, before and after correction; overall and per source.
+        With ``"regression"`` "after" is zero up to rounding on the data it was fitted on
+        (least-squares residuals are uncorrelated with the regressors): it only confirms
+        the correction ran. With ``"ica"`` it measures what the removed components left.
+        An EOG channel, and even more a stand-in proxy, also records brain activity that
+        nearby channels share, so "after" stays above zero for reasons other than eyes
+        (most with a horizontal EOG, whose electrodes sit beside F7/F8): read it as an
+        upper bound on the residual ocular signal.
 
     Notes
     -----
     Without an EOG channel the mean of the frontal stand-ins present serves as a vertical
-    EOG proxy. This is a compromise: the proxy also carries frontal brain activity, so
-    regression removes some of that from the other channels, and the stand-ins are not
-    regressed on themselves (a channel regressed on a proxy containing it would lose its
-    own signal), so with ``"regression"`` they keep their blinks. ICA is fitted on every
-    EEG channel and corrects the stand-ins too; the proxy only picks the components.
-    Horizontal eye movements largely cancel in the proxy's left-right mean.
+    EOG proxy. This is a compromise. For ``"regression"`` the proxy also carries frontal
+    brain activity, and brain activity the other channels share with it biases the
+    propagation factors (usually upwards: some brain signal is subtracted and part of the
+    blink stays, with the opposite sign); the stand-ins themselves are not regressed on
+    a proxy made of them (they would lose their own signal), so they keep their blinks.
+    ``"ica"`` is fitted on every EEG channel, uses the proxy only to choose components and
+    corrects the stand-ins too; prefer it when a site recorded no EOG. Horizontal eye
+    movements largely cancel in the proxy's left-right mean and are not corrected.
     """
 
     def __init__(self, method="regression", *, eog=None, stand_ins=("Fp1", "Fp2", "AF7", "AF8", "AF3", "AF4"),
-                 ica_components=0.99, max_components=15, threshold=0.5, random_state=0, high_pass=1.0):
+                 ica_components=0.99, max_components=15, threshold=0.5, random_state=0, high_pass=1.0,
+                 fit_reject=1e-3):
         self.method = method
         self.eog = eog
         self.stand_ins = stand_ins
@@ -115,6 +142,7 @@ class OcularCorrection:
         self.threshold = threshold
         self.random_state = random_state
         self.high_pass = high_pass
+        self.fit_reject = fit_reject
 
     def fit(self, raw):
         """Find the EOG source(s) and learn the correction.
@@ -130,10 +158,10 @@ class OcularCorrection:
         """
         self._check_params()
         self.sources_, self.source_labels_, self.stand_ins_used_ = [], [], False
-        self.corrected_channels_, self.skipped_reason_ = [], None
+        self.corrected_channels_, self.measured_channels_, self.skipped_reason_ = [], [], None
         self.coef_, self.ica_, self.n_components_, self.excluded_ = None, None, None, []
         self.ica_converged_ = None
-        self.residual_correlation_ = None
+        self.residual_correlation_, self.fit_excluded_s_ = None, 0.0
         if self.method == "none":
             return self
         eeg = _eeg_names(raw)
@@ -144,18 +172,29 @@ class OcularCorrection:
             return self
         self.source_labels_ = ([f"mean({', '.join(self.sources_)})"] if self.stand_ins_used_
                                else list(self.sources_))
-        self.corrected_channels_ = [n for n in eeg if n not in self.sources_]
+        self.measured_channels_ = [n for n in eeg if n not in self.sources_]
+        if not self.measured_channels_:
+            self.skipped_reason_ = "no EEG channel besides the EOG sources"
+            log.info("Ocular correction skipped: %s", self.skipped_reason_)
+            return self
+        self.corrected_channels_ = list(eeg if self.method == "ica" else self.measured_channels_)
         names = eeg if self.stand_ins_used_ else eeg + [n for n in self.sources_ if n not in eeg]
-        hp = _high_passed(raw, names, self.high_pass)
+        hp = self._fit_data(_high_passed(raw, names, self.high_pass))
+        if hp is None:
+            return self
         src = self._source_data(hp)
-        target = hp.get_data(picks=self.corrected_channels_)
+        target = hp.get_data(picks=self.measured_channels_)
         if self.method == "regression":
             self.coef_ = _propagation(target, src)
             after = target - self.coef_ @ src
         else:
             after = self._fit_ica(hp, eeg, src)
-        self.residual_correlation_ = {"before": max_abs_correlation(target, src),
-                                      "after": max_abs_correlation(after, src)}
+        before = np.abs(_correlations(target, src)).max(axis=0)
+        after = np.abs(_correlations(after, src)).max(axis=0)
+        self.residual_correlation_ = {
+            "before": float(before.max()), "after": float(after.max()),
+            "by_source": {label: {"before": float(b), "after": float(a)}
+                          for label, b, a in zip(self.source_labels_, before, after)}}
         log.info("Ocular correction (%s, sources %s): residual EOG correlation %.2f -> %.2f", self.method,
                  ", ".join(self.source_labels_), self.residual_correlation_["before"],
                  self.residual_correlation_["after"])
@@ -198,11 +237,12 @@ class OcularCorrection:
         -------
         record : dict
             ``method``, ``sources`` (labels), ``eog_channels``, ``stand_ins_used``,
-            ``stand_ins``, ``corrected_channels``, ``skipped_reason``, ``regression``
+            ``stand_ins``, ``corrected_channels``, ``skipped_reason``, ``fit_excluded_s``
+            (seconds left out of the fit by ``fit_reject``), ``regression``
             (None, or ``coefficients`` {channel: {source: V/V}}, ``max_abs_coefficient``,
             ``max_abs_channel``), ``ica`` (None, or ``n_components``, ``converged``, ``threshold``,
             ``excluded``: list of {component, correlation, source}), ``residual_correlation``
-            (None, or ``before``, ``after``, ``high_pass_hz``, ``n_channels``).
+            (None, or ``before``, ``after``, ``by_source``, ``high_pass_hz``, ``n_channels``).
         """
         if not hasattr(self, "sources_"):
             raise ProcessingError(problem(_WHERE, "record was called before fit", "call fit(raw) first"))
@@ -211,6 +251,7 @@ class OcularCorrection:
                "stand_ins_used": bool(self.stand_ins_used_),
                "stand_ins": list(self.sources_) if self.stand_ins_used_ else [],
                "corrected_channels": list(self.corrected_channels_), "skipped_reason": self.skipped_reason_,
+               "fit_excluded_s": float(self.fit_excluded_s_),
                "regression": None, "ica": None, "residual_correlation": None}
         if self.coef_ is not None:
             rows = np.abs(self.coef_).max(axis=1)
@@ -225,7 +266,9 @@ class OcularCorrection:
                           "excluded": [dict(e) for e in self.excluded_]}
         if self.residual_correlation_ is not None:
             rec["residual_correlation"] = dict(self.residual_correlation_, high_pass_hz=float(self.high_pass),
-                                               n_channels=len(self.corrected_channels_))
+                                               n_channels=len(self.measured_channels_))
+            rec["residual_correlation"]["by_source"] = {k: dict(v) for k, v in self.residual_correlation_[
+                "by_source"].items()}
         return rec
 
     # -- helpers -------------------------------------------------------------------------
@@ -238,6 +281,9 @@ class OcularCorrection:
         if not (isinstance(self.threshold, numbers.Real) and 0 < self.threshold < 1):
             raise DefinitionError(problem(_WHERE, f"threshold = {self.threshold!r} is not a correlation in (0, 1)",
                                           "choose e.g. 0.5", key="threshold"))
+        if self.fit_reject is not None and not (isinstance(self.fit_reject, numbers.Real) and self.fit_reject > 0):
+            raise DefinitionError(problem(_WHERE, f"fit_reject = {self.fit_reject!r} V is not a positive amplitude",
+                                          "choose e.g. 1e-3 V (1 mV) or None", key="fit_reject"))
         if not (isinstance(self.high_pass, numbers.Real) and self.high_pass > 0):
             raise DefinitionError(problem(_WHERE, f"high_pass = {self.high_pass!r} Hz is not positive",
                                           "choose e.g. 1.0 Hz", key="high_pass"))
@@ -269,6 +315,24 @@ class OcularCorrection:
             return eog, False
         present = [n for n in self.stand_ins if n in eeg]
         return present, bool(present)
+
+    def _fit_data(self, hp):
+        """The high-passed copy without the windows above ``fit_reject`` (None if too little is left)."""
+        import mne
+
+        sfreq = hp.info["sfreq"]
+        keep = quiet_samples(hp.get_data(), sfreq, self.fit_reject, pad=_filter_reach(sfreq, self.high_pass))
+        self.fit_excluded_s_ = float((~keep).sum() / sfreq)
+        if keep.sum() < _MIN_FIT_S * sfreq:
+            self.skipped_reason_ = (f"only {keep.sum() / sfreq:.1f} s of data below {self.fit_reject * 1e6:g} uV "
+                                    f"peak-to-peak (fit_reject) to fit on; at least {_MIN_FIT_S:g} s needed")
+            log.warning("Ocular correction skipped: %s", self.skipped_reason_)
+            return None
+        if keep.all():
+            return hp
+        log.info("Ocular correction: %.1f s above %g uV peak-to-peak left out of the fit", self.fit_excluded_s_,
+                 self.fit_reject * 1e6)
+        return mne.io.RawArray(hp.get_data()[:, keep], hp.info, verbose="error")
 
     def _source_data(self, raw):
         """EOG source time courses, shape (n_sources, n_times), V."""
@@ -302,10 +366,10 @@ class OcularCorrection:
         log.info("ICA: removed %d of %d components (|r| > %g with %s)", len(self.excluded_), self.n_components_,
                  self.threshold, ", ".join(self.source_labels_))
         corrected = ica.apply(hp.copy(), verbose="error") if self.excluded_ else hp
-        return corrected.get_data(picks=self.corrected_channels_)
+        return corrected.get_data(picks=self.measured_channels_)
 
 
-def eog_correlation(raw, sources, *, high_pass=1.0, exclude=()):
+def eog_correlation(raw, sources, *, high_pass=1.0, exclude=(), reject=None):
     """Largest absolute correlation between an EEG channel and an EOG source.
 
     Parameters
@@ -318,6 +382,9 @@ def eog_correlation(raw, sources, *, high_pass=1.0, exclude=()):
         Both sides are high-passed at this edge, Hz, before correlating.
     exclude : sequence of str
         EEG channels left out (the stand-ins that make up a proxy).
+    reject : float or None, default=None
+        Leave out 1 s windows whose high-passed peak-to-peak exceeds this, V, on any
+        channel used (as `OcularCorrection` does with ``fit_reject``).
 
     Returns
     -------
@@ -330,10 +397,55 @@ def eog_correlation(raw, sources, *, high_pass=1.0, exclude=()):
     if isinstance(sources, np.ndarray):
         src = mne.filter.filter_data(np.atleast_2d(sources).astype(float), raw.info["sfreq"], high_pass, None,
                                      verbose="error")
-        return max_abs_correlation(_high_passed(raw, eeg, high_pass).get_data(), src)
-    names = list(sources)
-    hp = _high_passed(raw, eeg + [n for n in names if n not in eeg], high_pass)
-    return max_abs_correlation(hp.get_data(picks=eeg), hp.get_data(picks=names))
+        x = _high_passed(raw, eeg, high_pass).get_data()
+    else:
+        names = list(sources)
+        hp = _high_passed(raw, eeg + [n for n in names if n not in eeg], high_pass)
+        x, src = hp.get_data(picks=eeg), hp.get_data(picks=names)
+    sfreq = raw.info["sfreq"]
+    keep = quiet_samples(np.vstack([x, src]), sfreq, reject, pad=_filter_reach(sfreq, high_pass))
+    return max_abs_correlation(x[:, keep], src[:, keep])
+
+
+def quiet_samples(x, sfreq, limit, window=1.0, pad=0.0):
+    """Samples in windows whose peak-to-peak stays at or below ``limit`` on every channel.
+
+    Parameters
+    ----------
+    x : ndarray, shape (n_channels, n_times), V
+    sfreq : float, Hz
+    limit : float or None, V
+        Peak-to-peak limit; None keeps every sample.
+    window : float, default=1.0
+        Window length, s; consecutive, non-overlapping, the last one possibly shorter.
+    pad : float, default=0.0
+        Also drop this many seconds on either side of every dropped window (e.g. the
+        reach of a filter applied to ``x``, whose ringing spreads a transient).
+
+    Returns
+    -------
+    keep : ndarray of bool, shape (n_times,)
+    """
+    n_times = x.shape[-1]
+    keep = np.ones(n_times, dtype=bool)
+    if limit is None:
+        return keep
+    width = max(1, int(round(window * sfreq)))
+    margin = int(round(pad * sfreq))
+    for start in range(0, n_times, width):
+        seg = x[:, start:start + width]
+        if (seg.max(axis=1) - seg.min(axis=1)).max() > limit:
+            keep[max(0, start - margin):start + width + margin] = False
+    return keep
+
+
+def _filter_reach(sfreq, high_pass):
+    """Half the length, s, of the zero-phase FIR high-pass `_high_passed` applies."""
+    import mne
+
+    taps = mne.filter.create_filter(None, sfreq, high_pass, None, phase="zero", fir_design="firwin",
+                                    verbose="error")
+    return (len(taps) // 2) / sfreq
 
 
 def max_abs_correlation(x, sources):

@@ -213,8 +213,10 @@ def test_builtin_feature_set_loads_with_its_paradigm(name):
 def test_oddball_values_are_si():
     p = config.load_paradigm(config.builtin_dir("paradigms") / "oddball.toml")
     assert p.design == "event-related"
-    assert p.rejection.method == "fixed"
-    assert p.rejection.peak_to_peak == pytest.approx(100e-6, rel=1e-12)  # V, from 100 uV
+    assert p.rejection.method == "adaptive"
+    assert p.rejection.peak_to_peak is None
+    assert p.rejection.detection_high_pass == 1.0  # Hz
+    assert p.rejection.max_cluster == 3
     assert p.rejection.min_trials == {"standard": 100, "deviant": 30}
     assert p.cleaning.sampling_rate == 250.0  # Hz
     assert p.cleaning.pass_band == (0.1, 30.0)  # Hz

@@ -385,9 +385,12 @@ def test_comparison_group_has_smaller_effects():
 
 
 def test_noise_free_mismatch_is_recovered_from_the_file(tmp_path, monkeypatch):
-    # Background almost off, no artefacts: the stored data must give back the expected
-    # mean amplitude (average reference over the common channels, 0.10-0.25 s).
+    # Background and rhythms almost off, no artefacts: the stored data must give back
+    # the expected mean amplitude (average reference over the common channels,
+    # 0.10-0.25 s).
     monkeypatch.setattr(brain, "_BACKGROUND_UV", 1e-3)
+    monkeypatch.setattr(brain, "_narrowband_noise",
+                        lambda rng, n_times, *args: np.zeros(n_times))
     truth, path = _write(tmp_path, "birch", "oddball", artefacts=False)
     raw = _read(path)
     data = _common_average(raw, "birch")[[COMMON_CHANNELS.index(c) for c in REGION]]

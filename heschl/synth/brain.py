@@ -64,7 +64,8 @@ _ASSR_HZ = 40.0
 _ASSR_RISE_S = 0.033        # build-up time constant: 95 % after 100 ms
 _ASSR_DECAY_S = 0.020
 _ALPHA_WIDTH_HZ = 0.8
-_BETA_WIDTH_HZ = 2.0
+_MU_WIDTH_HZ = 1.0
+_MU_UV = 2.0               # mu rhythm rms at Cz (average reference)
 _ALPHA_SWITCH_S = (0.5, 0.3)  # delay after the marker, duration of the change
 
 
@@ -111,9 +112,9 @@ def draw_subject_params(rng, group):
         "alpha_width_hz": _ALPHA_WIDTH_HZ,
         "alpha_uv_oz": {"eyes-open": eyes_open_uv,
                         "eyes-closed": _spread(rng, 3.0, 0.08) * eyes_open_uv},
-        "beta_peak_hz": round(float(rng.uniform(18.0, 22.0)), 2),
-        "beta_width_hz": _BETA_WIDTH_HZ,
-        "beta_uv_cz": _spread(rng, 3.0, 0.15),
+        "mu_peak_hz": round(float(rng.uniform(9.5, 11.5)), 2),
+        "mu_width_hz": _MU_WIDTH_HZ,
+        "mu_uv_cz": _spread(rng, _MU_UV, 0.15),
         "band_power_gains": {band: _spread(rng, gain, 0.04)
                              for band, gain in values["gains"].items()},
         "background_uv": _BACKGROUND_UV,
@@ -367,12 +368,15 @@ class ScalpParts:
         return self.dense
 
 
-def _beta(params, rng, n_times, sfreq, gains):
-    """Fronto-central beta rhythm, V at Cz; at rest scaled by the beta power gain."""
-    series = _narrowband_noise(rng, n_times, sfreq, params["beta_peak_hz"],
-                               params["beta_width_hz"])
-    gain = (gains or {}).get("beta", 1.0)
-    return series * params["beta_uv_cz"] * np.sqrt(gain) * UV
+def _mu(params, rng, n_times, sfreq):
+    """Fronto-central mu rhythm (alpha band, not blocked by closing the eyes), V at Cz.
+
+    Ongoing rhythms near 10 Hz give the background its size without adding noise to
+    event-related windows of 100 ms or more.
+    """
+    series = _narrowband_noise(rng, n_times, sfreq, params["mu_peak_hz"],
+                               params["mu_width_hz"])
+    return series * params["mu_uv_cz"] * UV
 
 
 def _background(params, patterns, rng, n_times, sfreq, gains):
@@ -449,7 +453,7 @@ def scalp_potentials(schedule, params, patterns, rng_noise, rng_trials, sfreq=SF
     parts = _background(params, patterns, rng_noise, n_times, sfreq, gains)
     parts.add(geometry.alpha_topography(),
               _alpha(schedule, params, rng_noise, n_times, sfreq))
-    parts.add(geometry.beta_topography(), _beta(params, rng_noise, n_times, sfreq, gains))
+    parts.add(geometry.mu_topography(), _mu(params, rng_noise, n_times, sfreq))
     if schedule.paradigm == "oddball":
         course = _oddball(schedule, params, n_times, sfreq)
         parts.add(geometry.auditory_topography(), -course)
@@ -493,14 +497,24 @@ def _rest_alpha_power(params, patterns, common_channels, region):
     sources = (1.0 - _SENSOR_FRACTION) * float((mixing[rows] ** 2).sum(axis=1).mean())
     sensors = _SENSOR_FRACTION * (1.0 - 1.0 / len(common_channels))
     background = total * fraction * (sources + sensors)
-    alpha_topography = geometry.average_reference(geometry.alpha_topography(),
-                                                  common_channels)
-    sd = params["alpha_width_hz"] / np.sqrt(2.0)
-    inside = np.diff(scipy.special.ndtr((np.array([8.0, 13.0])
-                                         - params["alpha_peak_hz"]) / sd))[0]
-    gain = float((alpha_topography[rows] ** 2).mean()) * inside
-    return {condition: background + gain * (amplitude * UV) ** 2
+    alpha = _rhythm_power(params["alpha_peak_hz"], params["alpha_width_hz"],
+                          geometry.alpha_topography(), rows, common_channels)
+    mu = _rhythm_power(params["mu_peak_hz"], params["mu_width_hz"],
+                       geometry.mu_topography(), rows, common_channels)
+    background += mu * (params["mu_uv_cz"] * UV) ** 2
+    return {condition: background + alpha * (amplitude * UV) ** 2
             for condition, amplitude in params["alpha_uv_oz"].items()}
+
+
+def _rhythm_power(peak, width, topography, rows, common_channels, band=(8.0, 13.0)):
+    """Share of a unit-rms rhythm's power in ``band`` at ``rows``, average reference.
+
+    The rhythm's power spectrum is Gaussian: centre ``peak``, sd ``width / sqrt(2)``.
+    """
+    referenced = geometry.average_reference(topography, common_channels)
+    sd = width / np.sqrt(2.0)
+    inside = np.diff(scipy.special.ndtr((np.array(band) - peak) / sd))[0]
+    return float((referenced[rows] ** 2).mean()) * inside
 
 
 def expected_values(paradigm, params, common_channels=COMMON_CHANNELS, sfreq=SFREQ,

@@ -21,7 +21,7 @@ __all__ = [
     "point_positions",
     "auditory_topography",
     "alpha_topography",
-    "beta_topography",
+    "mu_topography",
     "blink_topography",
     "focal_topography",
     "random_dipole_topographies",
@@ -155,8 +155,8 @@ def alpha_topography():
 
 
 @functools.lru_cache(maxsize=1)
-def beta_topography():
-    """Fronto-central (sensorimotor) beta generator.
+def mu_topography():
+    """Fronto-central (sensorimotor) mu generator.
 
     Returns
     -------

@@ -188,8 +188,39 @@ def _detection_copy(raw, picks):
     return mne.filter.filter_data(x, raw.info["sfreq"], 1.0, None, verbose="error")
 
 
-def clean(raw, paradigm, forced_bads=(), where="recording", restored=None):
-    """Pass band, bad channels (detect + interpolate), re-reference, on ``raw`` in place.
+NO_EOG_FOR_AUTO = ('no EOG channel: ocular artefacts are left to epoch rejection; set cleaning.ocular = '
+                   '"ica" (frontal channels stand in for EOG) to correct them')
+
+
+def ocular_method(raw, policy):
+    """The ocular method to use: "auto" is regression on the EOG channels (Gratton, Coles &
+    Donchin 1983) when the recording has them, and nothing otherwise: regressing on frontal
+    stand-ins would also remove fronto-central brain signal such as the mismatch response,
+    so stand-ins are used only when a paradigm asks for "regression" or "ica" explicitly."""
+    import mne
+
+    if policy != "auto":
+        return policy
+    return "regression" if len(mne.pick_types(raw.info, eog=True)) else "none"
+
+
+def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_frequency=None):
+    """Line noise, pass band, bad channels (detect + interpolate), ocular correction,
+    re-reference, on ``raw`` in place.
+
+    Parameters
+    ----------
+    raw : mne.io.BaseRaw
+        Harmonised data; this task's own copy, changed in place.
+    paradigm : heschl.config.Paradigm
+    forced_bads : sequence of str
+        Channels the study file marks bad for this recording.
+    where : str
+        The file, for messages.
+    restored : str or None
+        The recording reference channel restored as zeros (never judged flat).
+    line_frequency : float or None, Hz
+        The site's mains frequency.
 
     Returns
     -------
@@ -197,7 +228,15 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None):
     """
     import mne
 
-    record = {"filter": filter_pass_band(raw, paradigm.cleaning.pass_band)}
+    from .linenoise import remove_line_noise
+    from .ocular import OcularCorrection
+
+    record = {}
+    if line_frequency:
+        # Before the pass band, so that harmonics inside the recording's band are found.
+        record["line_noise"] = remove_line_noise(raw, line_frequency, method=paradigm.cleaning.line_noise,
+                                                 picks=["eeg", "eog"])
+    record["filter"] = filter_pass_band(raw, paradigm.cleaning.pass_band)
     picks = mne.pick_types(raw.info, eeg=True, meg=False)
     names = [raw.ch_names[i] for i in picks]
     bads = {c: "marked bad in the study file" for c in forced_bads if c in names}
@@ -213,5 +252,12 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None):
         raw.info["bads"] = sorted(bads)
         raw.interpolate_bads(reset_bads=True, mode="accurate", origin=(0.0, 0.0, 0.04), verbose="error")
     record["interpolated"] = sorted(bads)
+    method = ocular_method(raw, paradigm.cleaning.ocular)
+    ocular = OcularCorrection(method).fit(raw)
+    if method != "none":
+        raw[:, :] = ocular.apply(raw).get_data()
+    record["ocular"] = dict(ocular.record(), policy=paradigm.cleaning.ocular)
+    if paradigm.cleaning.ocular == "auto" and method == "none":
+        record["ocular"]["skipped_reason"] = NO_EOG_FOR_AUTO
     record["reference"] = rereference(raw, paradigm.cleaning.reference, where)
     return record

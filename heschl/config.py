@@ -37,7 +37,7 @@ REFERENCE_WORDS = ("average", "as-recorded", "linked-mastoids")
 RECORDING_REFERENCE_WORDS = ("average", "linked-mastoids", "unknown")
 REJECTION_METHODS = ("adaptive", "fixed", "none")
 LINE_NOISE_METHODS = ("notch", "fit", "none")
-OCULAR_METHODS = ("regression", "ica", "none")
+OCULAR_METHODS = ("auto", "regression", "ica", "none")
 BAD_CHANNEL_POLICIES = ("detect", "keep")
 POLARITIES = ("negative", "positive")
 
@@ -78,7 +78,7 @@ class Cleaning:
     reference: object             # "average" | "linked-mastoids" | "as-recorded" | tuple of channel names
     bad_channels: str             # "detect" | "keep"
     line_noise: str = "notch"     # "notch" | "fit" | "none"
-    ocular: str = "regression"    # "regression" | "ica" | "none"
+    ocular: str = "none"          # "auto" | "regression" | "ica" | "none"
 
 
 @dataclass(frozen=True)
@@ -461,7 +461,7 @@ def _cleaning(top):
         ref = (ref,)
     policy = section.string("bad_channels", default="detect", choices=BAD_CHANNEL_POLICIES)
     line = section.string("line_noise", default="notch", choices=LINE_NOISE_METHODS)
-    ocular = section.string("ocular", default="regression", choices=OCULAR_METHODS)
+    ocular = section.string("ocular", default="none", choices=OCULAR_METHODS)
     return Cleaning(rate, band, ref, policy, line, ocular)
 
 

@@ -172,7 +172,7 @@ def process_recording(study, recording):
     raw, markers, harmonised = harmonise(raw, site, paradigm, study.common_channels, where)
     clock.lap("harmonise")
     cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
-                     restored=harmonised["restored_reference"])
+                     restored=harmonised["restored_reference"], line_frequency=site.line_frequency)
     clock.lap("clean")
     trials_data, times, entries, ch_names, rejection = _trials(raw, markers, paradigm)
     clock.lap("segment and reject")
@@ -332,6 +332,7 @@ def _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr):
         if value is not None and value < limits["min_snr"]:
             flags.append(_flag("caution", "low-snr", f"{c}: average SNR {value:.2f} below {limits['min_snr']:g} "
                                "(plus-minus estimate)"))
+    flags.extend(_cleaning_flags(cleaning, limits, paradigm))
     if markers.unknown:
         flags.append(_flag("note", "unmapped-markers", "codes in the file not used by this paradigm: "
                            + ", ".join(f"{k} ({v})" for k, v in sorted(markers.unknown.items()))))
@@ -362,6 +363,27 @@ def _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr):
         "filter": cleaning["filter"],
         "reference": cleaning["reference"],
     }
+
+
+def _cleaning_flags(cleaning, limits, paradigm):
+    """Flags from the line-noise and ocular records."""
+    flags = []
+    ocular = cleaning.get("ocular") or {}
+    if ocular.get("skipped_reason") and ocular.get("policy") != "none":
+        flags.append(_flag("caution", "no-ocular-correction", ocular["skipped_reason"]))
+    residual = (ocular.get("residual_correlation") or {}).get("by_source", {})
+    vertical = {k: v for k, v in residual.items() if "HEOG" not in k.upper()}
+    worst = max((v["after"] for v in vertical.values()), default=None)
+    if worst is not None and worst > limits["max_eog_correlation"]:
+        flags.append(_flag("caution", "ocular-residual", f"EEG still correlates {worst:.2f} with the EOG source "
+                           f"after correction (limit {limits['max_eog_correlation']:g})"))
+    line = cleaning.get("line_noise") or {}
+    ratio = line.get("ratio_after")
+    if ratio is not None and line.get("line_frequency_hz", 1e9) < paradigm.cleaning.pass_band[1] \
+            and ratio > limits["max_line_ratio"]:
+        flags.append(_flag("caution", "line-noise", f"line-noise power {ratio:.1f} x its neighbours after removal "
+                           f"(limit {limits['max_line_ratio']:g})"))
+    return flags
 
 
 def _trial_flags(counts, limits):

@@ -87,7 +87,7 @@ def test_the_low_count_recording_is_flagged_with_its_reason(processed_study, tru
     assert qc["verdict"] == "unusable"
     flag = next(f for f in qc["flags"] if f["code"] == "too-few-trials")
     assert flag["message"].startswith("deviant:") and "below the minimum 30" in flag["message"]
-    assert "peak-to-peak" in flag["message"]
+    assert "dropped: adaptive" in flag["message"]  # the reason: adaptive rejection dropped them
     table = pd.read_csv(recording_paths(study.output, recording)["features"], sep="\t", keep_default_na=False)
     assert table.loc[table.feature == "mismatch_mean_amplitude", "flags"].item().startswith("deviant:")
 

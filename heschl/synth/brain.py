@@ -60,7 +60,7 @@ GROUP_VALUES = {
 #: Bands whose background power differs between groups at rest, Hz, [low, high).
 BANDS = {"theta": (4.0, 8.0), "beta": (14.0, 30.0), "gamma": (30.0, 45.0)}
 
-_BACKGROUND_UV = 3.0        # aperiodic part: rms per channel in 1-30 Hz, average ref.
+_BACKGROUND_UV = 2.0        # aperiodic part: rms per channel in 1-30 Hz, average ref.
 _SENSOR_FRACTION = 0.08     # share of background power that is independent per sensor
 _N_BACKGROUND_SOURCES = 12
 _NOISE_KNEE_HZ = 4.0        # aperiodic spectrum 1 / (knee + f): flat well below it
@@ -73,7 +73,7 @@ _ASSR_RISE_S = 0.033        # build-up time constant: 95 % after 100 ms
 _ASSR_DECAY_S = 0.020
 _ALPHA_WIDTH_HZ = 0.8
 _MU_WIDTH_HZ = 1.0
-_MU_UV = 2.0                # mu rhythm rms at Cz (average reference)
+_MU_UV = 1.0                # mu rhythm rms at Cz (average reference)
 _ALPHA_SWITCH_S = (0.5, 0.3)  # delay after the marker, duration of the change
 
 

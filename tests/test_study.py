@@ -157,3 +157,50 @@ def test_one_bad_file_does_not_stop_the_study(study_copy):
     assert sum(s["status"] == "done" for s in summaries) == len(recordings) - 1
     page = (study_copy.output / "group" / "report.html").read_text()
     assert "Recordings that failed" in page
+
+
+def test_default_cleaning_brings_the_mismatch_closer_to_truth_than_no_cleaning(processed_study, truth, tmp_path):
+    """Issue acceptance: mismatch error against the generator's truth, default vs no cleaning."""
+    from heschl.config import load_study
+
+    study, _ = processed_study  # read only: the uncleaned run writes under tmp_path
+    text = (config_dir() / "oddball.toml").read_text()
+    for old, new in (('method = "adaptive"', 'method = "none"'), ("detection_high_pass = 1.0", ""),
+                     ("max_cluster = 3", ""), ('bad_channels = "detect"', 'bad_channels = "keep"'),
+                     ('line_noise = "notch"', 'line_noise = "none"')):
+        text = text.replace(old, new)
+    (tmp_path / "oddball-uncleaned.toml").write_text(text)
+    study_text = (study.root / "study.toml").read_text()
+    study_text = study_text.replace('paradigm = "oddball"', f'paradigm = "{tmp_path / "oddball-uncleaned.toml"}"')
+    study_text = study_text.replace('output = "derivatives/heschl"', f'output = "{tmp_path / "out"}"')
+    study_text = study_text.replace('participants = "participants.tsv"',
+                                    f'participants = "{study.root / "participants.tsv"}"')
+    (tmp_path / "study.toml").write_text(_oddball_only(study_text, study.root))
+    run_study(load_study(tmp_path / "study.toml"), jobs=2)
+    expected = {t["participant_id"]: t["expected"]["mismatch_mean_amplitude_uv"]
+                for t in truth["recordings"] if t["paradigm"] == "oddball"}
+
+    def error(folder):
+        table = pd.read_csv(folder / "group" / "features.tsv", sep="\t")
+        mmn = table[table.feature == "mismatch_mean_amplitude"].set_index("participant_id").value
+        return float(np.mean([abs(mmn[p] - expected[p]) for p in expected]))
+
+    cleaned, uncleaned = error(study.output), error(tmp_path / "out")
+    print(f"mean |error| of the mismatch amplitude: default cleaning {cleaned:.3f} uV, none {uncleaned:.3f} uV")
+    assert cleaned < uncleaned
+
+
+def config_dir():
+    from heschl.config import builtin_dir
+
+    return builtin_dir("paradigms")
+
+
+def _oddball_only(text, root):
+    """The study text with only the oddball analysis and absolute file patterns."""
+    import re
+
+    text = re.sub(r"\[\[analyses\]\]\nparadigm = \"(clicktrain|rest)\"\nfeature_sets = \[[^\]]*\]\n\n?", "", text)
+    text = re.sub(r"\n(clicktrain|rest) = \"[^\"]*\"", "", text)
+    text = re.sub(r"\[sites\.\w+\.markers\.(clicktrain|rest)\]\n(\"[^\n]*\n)+\n?", "", text)
+    return re.sub(r'(oddball = ")(raw/)', lambda m: m.group(1) + str(root) + "/" + m.group(2), text)

@@ -15,7 +15,20 @@ from heschl.numeric.phase import (
     rayleigh,
     total_power,
 )
+from heschl.numeric.crossspectra import coherence, cross_spectra, imaginary_coherency, regularise
 from heschl.numeric.rejection import fixed_threshold, peak_to_peak
+from heschl.numeric.reliability import (
+    bootstrap_interval,
+    bootstrap_sme,
+    lengthening_factor,
+    sme_difference,
+    sme_mean_amplitude,
+    spearman_brown,
+    split_half,
+    split_half_cohort,
+    split_half_recording,
+)
+from heschl.numeric.rhythms import aperiodic_fit, peak_frequency
 from heschl.numeric.spectra import (
     CLOSURES,
     band_power,
@@ -47,4 +60,19 @@ __all__ = [
     "POLARITIES",
     "peak_to_peak",
     "fixed_threshold",
+    "cross_spectra",
+    "coherence",
+    "imaginary_coherency",
+    "regularise",
+    "spearman_brown",
+    "lengthening_factor",
+    "split_half",
+    "split_half_cohort",
+    "split_half_recording",
+    "bootstrap_interval",
+    "bootstrap_sme",
+    "sme_mean_amplitude",
+    "sme_difference",
+    "aperiodic_fit",
+    "peak_frequency",
 ]

@@ -52,9 +52,20 @@ MEASURE_KINDS = {
     "band-power": ({"signal", "region", "band"}, set(), "uV^2", ("uV^2", "V^2")),
     "relative-band-power": ({"signal", "region", "band", "relative_to"}, set(), "1", ("1",)),
     "band-ratio": ({"numerator", "denominator", "region", "band"}, set(), "1", ("1",)),
+    "fractional-area-latency": ({"signal", "region", "window", "polarity"}, {"fraction"}, "ms", ("ms", "s")),
+    "induced-power": ({"signal", "region", "frequency", "window"}, set(), "uV^2", ("uV^2", "V^2")),
+    "ppc": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
+    "rayleigh-p": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
+    "snr": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
+    "snr-p": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
+    "peak-frequency": ({"signal", "region", "band"}, set(), "Hz", ("Hz",)),
+    "aperiodic-exponent": ({"signal", "region"}, set(), "1", ("1",)),
+    "aperiodic-offset": ({"signal", "region"}, set(), "log10(uV^2/Hz)", ("log10(uV^2/Hz)",)),
 }
-_EPOCH_KINDS = {"mean-amplitude", "peak-amplitude", "peak-latency", "itpc", "evoked-power"}
-_SPECTRUM_KINDS = {"band-power", "relative-band-power", "band-ratio"}
+_EPOCH_KINDS = {"mean-amplitude", "peak-amplitude", "peak-latency", "itpc", "evoked-power",
+                "fractional-area-latency", "induced-power", "ppc", "rayleigh-p", "snr", "snr-p"}
+_SPECTRUM_KINDS = {"band-power", "relative-band-power", "band-ratio", "peak-frequency", "aperiodic-exponent",
+                   "aperiodic-offset"}
 
 
 # --------------------------------------------------------------------------- objects
@@ -537,7 +548,7 @@ def _stimulation(top, cleaning):
 # --------------------------------------------------------------------------- feature set
 _FEATURE_KEYS = {"name", "paradigm", "summary", "regions", "bands", "spectrum", "measures"}
 _MEASURE_KEYS = {"name", "kind", "signal", "region", "window", "frequency", "band", "polarity",
-                 "numerator", "denominator", "relative_to", "unit"}
+                 "numerator", "denominator", "relative_to", "unit", "fraction"}
 
 
 def load_feature_set(path, paradigm):
@@ -594,6 +605,8 @@ def _expand_measure(section, paradigm, regions, bands, spec):
         fixed["frequency"] = _measure_frequency(section, paradigm)
     if "polarity" in required:
         fixed["polarity"] = section.string("polarity", choices=POLARITIES)
+    if "fraction" in optional:
+        fixed["fraction"] = section.number("fraction", default=0.5, low=0.0, high=1.0, strict_low=True)
     region = fixed["region"] = section.string("region")
     if region not in regions:
         section.fail("region", f'"{region}" is not defined under [regions]{did_you_mean(region, regions)}',

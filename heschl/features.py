@@ -10,16 +10,20 @@ import logging
 
 import numpy as np
 
-from .numeric.erp import mean_amplitude, peak, region_mean
-from .numeric.phase import evoked_power, itpc, morlet_transform
-from .numeric.spectra import band_power, relative_band_power, welch_psd
+from .numeric.erp import fractional_area_latency, mean_amplitude, peak, region_mean
+from .numeric.phase import (evoked_power, induced_power, itpc, morlet_transform, pairwise_phase_consistency,
+                            rayleigh)
+from .numeric.rhythms import aperiodic_fit, peak_frequency
+from .numeric.spectra import band_power, relative_band_power, snr_neighbours, welch_psd
 
 __all__ = ["MEASURES", "UNIT_SCALE", "Source", "compute_features"]
 
 log = logging.getLogger(__name__)
 
 # Factor from the SI value to the reported unit.
-UNIT_SCALE = {"uV": 1e6, "V": 1.0, "ms": 1e3, "s": 1.0, "1": 1.0, "uV^2": 1e12, "V^2": 1.0}
+UNIT_SCALE = {"uV": 1e6, "V": 1.0, "ms": 1e3, "s": 1.0, "1": 1.0, "uV^2": 1e12, "V^2": 1.0, "Hz": 1.0}
+# Quantities on a log scale are shifted, not scaled: log10(uV^2/Hz) = log10(V^2/Hz) + 12.
+UNIT_SHIFT = {"log10(uV^2/Hz)": 12.0}
 N_CYCLES = 7.0  # Morlet cycles for phase measures; temporal SD 28 ms at 40 Hz (REFERENCES F24)
 
 
@@ -142,6 +146,64 @@ def _band_ratio(m, source, regions, bands):
     return float(num / den)
 
 
+def _fractional_area_latency(m, source, regions, bands):
+    p = m.params
+    wave = _region(source, regions, p["region"], source.average(p["signal"]))
+    return float(fractional_area_latency(wave, source.times, p["window"], p["polarity"], p.get("fraction", 0.5)))
+
+
+def _induced_power(m, source, regions, bands):
+    return _phase_window(m, source, regions, induced_power)
+
+
+def _ppc(m, source, regions, bands):
+    return _phase_window(m, source, regions, pairwise_phase_consistency)
+
+
+def _rayleigh_p(m, source, regions, bands):
+    """Rayleigh p (Zar's approximation) of the region-mean ITPC over the window and its trial count."""
+    r = _phase_window(m, source, regions, itpc)
+    return float(rayleigh(r, n=source.n_trials(m.params["signal"]))[1])
+
+
+def _evoked_spectrum(m, source, regions):
+    """Periodogram of the region-mean average in the window (rectangular window), V^2."""
+    p = m.params
+    wave = _region(source, regions, p["region"], source.average(p["signal"]))[source.window_mask(p["window"])]
+    spectrum = np.abs(np.fft.rfft(wave)) ** 2
+    return np.fft.rfftfreq(wave.size, 1.0 / source.sfreq), spectrum
+
+
+def _snr(m, source, regions, bands):
+    freqs, spectrum = _evoked_spectrum(m, source, regions)
+    return float(snr_neighbours(freqs, spectrum, m.params["frequency"])[0])
+
+
+def _snr_p(m, source, regions, bands):
+    freqs, spectrum = _evoked_spectrum(m, source, regions)
+    return float(snr_neighbours(freqs, spectrum, m.params["frequency"])[1])
+
+
+def _region_spectrum(m, source, regions):
+    freqs, psd = source.spectrum(m.params["signal"], m.params["spectrum"])
+    return freqs, _region(source, regions, m.params["region"], psd)
+
+
+def _peak_frequency(m, source, regions, bands):
+    freqs, psd = _region_spectrum(m, source, regions)
+    return float(peak_frequency(freqs, psd, bands[m.params["band"]]))
+
+
+def _aperiodic_exponent(m, source, regions, bands):
+    freqs, psd = _region_spectrum(m, source, regions)
+    return float(aperiodic_fit(freqs, psd)[0])
+
+
+def _aperiodic_offset(m, source, regions, bands):
+    freqs, psd = _region_spectrum(m, source, regions)
+    return float(aperiodic_fit(freqs, psd)[1])
+
+
 MEASURES = {
     "mean-amplitude": _mean_amplitude,
     "peak-amplitude": _peak_amplitude,
@@ -151,6 +213,15 @@ MEASURES = {
     "band-power": _band_power,
     "relative-band-power": _relative_band_power,
     "band-ratio": _band_ratio,
+    "fractional-area-latency": _fractional_area_latency,
+    "induced-power": _induced_power,
+    "ppc": _ppc,
+    "rayleigh-p": _rayleigh_p,
+    "snr": _snr,
+    "snr-p": _snr_p,
+    "peak-frequency": _peak_frequency,
+    "aperiodic-exponent": _aperiodic_exponent,
+    "aperiodic-offset": _aperiodic_offset,
 }
 
 
@@ -179,7 +250,8 @@ def compute_features(feature_set, source, min_trials):
             value = float("nan")
             flags.append("no trials left")
         else:
-            value = MEASURES[m.kind](m, source, feature_set.regions, feature_set.bands) * UNIT_SCALE[m.unit]
+            value = MEASURES[m.kind](m, source, feature_set.regions, feature_set.bands)
+            value = value + UNIT_SHIFT[m.unit] if m.unit in UNIT_SHIFT else value * UNIT_SCALE[m.unit]
         rows.append({"feature": m.name, "value": value, "unit": m.unit, "kind": m.kind,
                      "signal": "/".join(signals), "region": m.params["region"],
                      "window": _describe(m), "n_trials": min(counts.values()),

@@ -251,8 +251,9 @@ def test_builtin_feature_values():
     rest = config.load_paradigm(folders[0] / "rest.toml")
     rest_core = config.load_feature_set(folders[1] / "rest-core.toml", rest)
     assert rest_core.bands["alpha"] == (8.0, 13.0)  # Hz
-    # 2 kinds x 2 signals x 4 bands, plus the alpha ratio
-    assert len(rest_core.measures) == 2 * 2 * 4 + 1
+    # 2 kinds x 2 signals x 4 bands, the alpha ratio, and 3 kinds x 2 signals
+    # (peak frequency, aperiodic exponent and offset)
+    assert len(rest_core.measures) == 2 * 2 * 4 + 1 + 3 * 2
     assert "band_power_alpha_eyes_closed_posterior" in {m.name for m in rest_core.measures}
     click = config.load_paradigm(folders[0] / "clicktrain.toml")
     click_core = config.load_feature_set(folders[1] / "clicktrain-core.toml", click)

@@ -218,3 +218,20 @@ def test_plus_minus_snr_grows_with_a_response_and_trial_count():
     # ratio (which counts signal plus residual noise over noise) rises from ~1.2 to ~3.
     assert many > 2 * few and few > 1.0
     assert np.isnan(plus_minus_snr(signal[None], times, (0.0, 0.5)))
+
+
+def test_fractional_area_latency_of_a_symmetric_component_is_its_peak():
+    # A symmetric component's 50 % area latency equals its peak time (Kiesel et al. 2008,
+    # from memory); trapezoid + linear interpolation: within a tenth of a sample.
+    from heschl.numeric.erp import fractional_area_latency
+
+    sfreq = 100 + np.pi
+    times = np.arange(-0.1, 0.6, 1 / sfreq)
+    wave = -2e-6 * np.exp(-((times - 0.18) ** 2) / (2 * 0.03 ** 2))
+    assert abs(fractional_area_latency(wave, times, (0.0, 0.4)) - 0.18) < 0.1 / sfreq
+    # The 25 % point of a Gaussian lies 0.674 SD before its centre (normal quantile, scipy).
+    from scipy.stats import norm
+
+    expected = 0.18 + norm.ppf(0.25) * 0.03
+    assert abs(fractional_area_latency(wave, times, (0.0, 0.4), fraction=0.25) - expected) < 0.5e-3
+    assert np.isnan(fractional_area_latency(-wave, times, (0.0, 0.4)))  # no negative area

@@ -204,3 +204,27 @@ def _oddball_only(text, root):
     text = re.sub(r"\n(clicktrain|rest) = \"[^\"]*\"", "", text)
     text = re.sub(r"\[sites\.\w+\.markers\.(clicktrain|rest)\]\n(\"[^\n]*\n)+\n?", "", text)
     return re.sub(r'(oddball = ")(raw/)', lambda m: m.group(1) + str(root) + "/" + m.group(2), text)
+
+
+@pytest.mark.parametrize("feature, sign", [
+    ("mismatch_mean_amplitude", +1),   # smaller (less negative) mismatch in the comparison group
+    ("itpc_40", -1),                   # lower 40 Hz phase coherence
+    ("ppc_40", -1),
+    ("band_power_theta_eyes_closed_posterior", +1),  # slightly more theta at rest
+    ("band_power_gamma_eyes_closed_posterior", +1),  # slightly more gamma
+    ("band_power_beta_eyes_closed_posterior", -1),   # less beta
+    ("band_power_theta_eyes_open_posterior", +1),
+    ("band_power_gamma_eyes_open_posterior", +1),
+    ("band_power_beta_eyes_open_posterior", -1),
+])
+def test_group_effects_of_the_scenario_have_the_right_sign(group, feature, sign):
+    # Ground truth of the synthetic scenario (SCENARIO.md), invented values.
+    rows = _value(group, feature)
+    difference = rows[rows.group == "comparison"].value.mean() - rows[rows.group == "control"].value.mean()
+    assert np.sign(difference) == sign, (feature, difference)
+
+
+def test_mismatch_inverts_at_the_mastoids_under_average_reference(group):
+    # REFERENCES F19 (Naatanen et al. 2007): negative fronto-centrally, positive at mastoids.
+    assert (_value(group, "mismatch_mean_amplitude").value < 0).all()
+    assert (_value(group, "mismatch_mean_amplitude_mastoid").value > 0).all()

@@ -115,6 +115,7 @@ def write_group_outputs(study, recordings, summaries):
     """Group feature table, QC table and study page, read back from the written files."""
     import pandas as pd
 
+    from .group import group_summary
     from .outputs import recording_paths, write_group
     from .report import render_study
 
@@ -137,7 +138,9 @@ def write_group_outputs(study, recordings, summaries):
     table = pd.concat(tables, ignore_index=True) if tables else pd.DataFrame()
     qc_table = pd.DataFrame(qc_rows)
     failures = [s for s in summaries if s["status"] == "failed"]
-    write_group(study.output, table, qc_table, render_study(study.name, table, qc_table, failures))
+    summary = group_summary(table) if len(table) and set(table["group"]) >= {"control", "comparison"} else None
+    write_group(study.output, table, qc_table, render_study(study.name, table, qc_table, failures, summary),
+                summary)
     return table, qc_table
 
 

@@ -119,9 +119,13 @@ def write_dataset_description(output, study_name):
     return write_atomic(Path(output) / "dataset_description.json", _json(desc))
 
 
-def write_group(output, table, qc_table, report_html=None):
-    """Study-level tables (and page) under ``<output>/group``."""
+def write_group(output, table, qc_table, report_html=None, summary=None):
+    """Study-level tables (and page) under ``<output>/group``: features, QC, and the group
+    summary (means with intervals and Hedges' g per site and pooled) when there is one."""
     folder = Path(output) / "group"
+    if summary is not None:
+        write_atomic(folder / "summary.tsv", summary.to_csv(sep="\t", index=False, na_rep="n/a",
+                                                            float_format="%.6g", lineterminator="\n"))
     write_atomic(folder / "features.tsv", table.to_csv(sep="\t", index=False, na_rep="n/a",
                                                        float_format="%.6g", lineterminator="\n"))
     write_atomic(folder / "qc.tsv", qc_table.to_csv(sep="\t", index=False, na_rep="n/a", lineterminator="\n"))

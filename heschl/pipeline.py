@@ -371,9 +371,6 @@ def _cleaning_flags(cleaning, limits, paradigm):
     ocular = cleaning.get("ocular") or {}
     if ocular.get("skipped_reason") and ocular.get("policy") != "none":
         flags.append(_flag("caution", "no-ocular-correction", ocular["skipped_reason"]))
-    elif ocular.get("policy") == "none":
-        flags.append(_flag("note", "no-ocular-correction", "ocular artefacts not corrected (cleaning.ocular = "
-                           "\"none\"); blinks are left to epoch rejection"))
     residual = (ocular.get("residual_correlation") or {}).get("by_source", {})
     vertical = {k: v for k, v in residual.items() if "HEOG" not in k.upper()}
     worst = max((v["after"] for v in vertical.values()), default=None)

@@ -148,13 +148,9 @@ def render_recording(recording, result, design):
         provenance=result["provenance"])
 
 
-def render_study(study_name, table, qc_table, failures):
-    """The study page: verdicts per recording and feature summaries per site and group."""
-    summary = []
-    if len(table):
-        grouped = table.groupby(["paradigm", "feature", "unit", "site", "group"])["value"]
-        stats = grouped.agg(["mean", "std", "count"]).reset_index()
-        summary = stats.to_dict("records")
+def render_study(study_name, table, qc_table, failures, summary=None):
+    """The study page: verdicts per recording, and group effects per site and pooled."""
+    rows = summary.to_dict("records") if summary is not None and len(summary) else []
     return _environment().get_template("study.html.j2").render(
         css=_css(), caution=CAUTION, version=__version__, name=study_name,
-        qc=qc_table.to_dict("records") if len(qc_table) else [], summary=summary, failures=failures)
+        qc=qc_table.to_dict("records") if len(qc_table) else [], summary=rows, failures=failures)

@@ -228,3 +228,15 @@ def test_mismatch_inverts_at_the_mastoids_under_average_reference(group):
     # REFERENCES F19 (Naatanen et al. 2007): negative fronto-centrally, positive at mastoids.
     assert (_value(group, "mismatch_mean_amplitude").value < 0).all()
     assert (_value(group, "mismatch_mean_amplitude_mastoid").value > 0).all()
+
+
+def test_group_summary_reports_effect_sizes_per_site_and_pooled(processed_study):
+    study, _ = processed_study
+    summary = pd.read_csv(study.output / "group" / "summary.tsv", sep="\t")
+    mmn = summary[(summary.feature == "mismatch_mean_amplitude")].set_index("scope")
+    assert set(mmn.index) == {"alder", "birch", "cedar", "pooled"}
+    assert mmn.loc["pooled", "n_control"] == 3
+    # The low-count recording's flagged mismatch is left out of the group statistics.
+    assert mmn.loc["pooled", "n_excluded"] == 1 and mmn.loc["pooled", "n_comparison"] == 2
+    assert mmn.loc["pooled", "difference"] > 0 and np.isfinite(mmn.loc["pooled", "g"])
+    assert "Hedges" in (study.output / "group" / "report.html").read_text()

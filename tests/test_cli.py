@@ -1,5 +1,4 @@
 """Command line: exit codes and one-line errors for bad input."""
-import pytest
 
 from heschl.cli import main
 

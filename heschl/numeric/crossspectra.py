@@ -12,37 +12,14 @@ import scipy.fft
 import scipy.signal
 
 from heschl.errors import DefinitionError, InputDataError, problem
-from heschl.numeric.spectra import EDGE_TOLERANCE
+from heschl.numeric.spectra import EDGE_TOLERANCE, welch_settings
 
 __all__ = ["cross_spectra", "coherence", "imaginary_coherency", "regularise"]
 
 
 def _taper(where, sfreq, segment, overlap, window, n_times):
-    """Check the Welch settings as `welch_psd` does; return (taper, step)."""
-    sfreq, segment = float(sfreq), float(segment)
-    if not (np.isfinite(sfreq) and sfreq > 0):
-        raise DefinitionError(problem(where, f"sfreq = {sfreq} Hz is not positive",
-                                      "pass the sampling rate in Hz", key="sfreq"))
-    nperseg = int(round(segment * sfreq)) if np.isfinite(segment) else 0
-    if nperseg < 2:
-        raise DefinitionError(problem(
-            where, f"segment = {segment} s is {nperseg} samples at {sfreq:g} Hz",
-            "choose a segment of at least 2 samples", key="segment"))
-    if n_times < nperseg:
-        raise InputDataError(problem(
-            where, f"segment = {segment:g} s ({nperseg} samples) is longer than the "
-            f"data ({n_times} samples, {n_times / sfreq:g} s)",
-            "use a shorter segment or longer recordings", key="segment"))
-    if not 0 <= float(overlap) < 1:
-        raise DefinitionError(problem(where, f"overlap = {overlap} is outside [0, 1)",
-                                      "pass a fraction such as 0.5", key="overlap"))
-    noverlap = min(int(round(float(overlap) * nperseg)), nperseg - 1)
-    try:
-        taper = scipy.signal.get_window(window, nperseg)
-    except ValueError as err:
-        raise DefinitionError(problem(where, f"window = {window!r} is not a known window "
-                                      f"({err})", 'use e.g. "hann", "hamming" or "boxcar"',
-                                      key="window")) from None
+    """The Welch settings of `welch_psd`; returns (taper, step between segments)."""
+    taper, nperseg, noverlap = welch_settings(where, sfreq, segment, overlap, window, n_times)
     return taper, nperseg - noverlap
 
 

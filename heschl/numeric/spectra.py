@@ -49,6 +49,17 @@ def welch_psd(x, sfreq, segment, overlap=0.5, window="hann"):
     """
     where = "welch_psd"
     x = np.asarray(x)
+    n_times = x.shape[-1] if x.ndim else 0
+    taper, nperseg, noverlap = welch_settings(where, sfreq, segment, overlap, window, n_times)
+    return scipy.signal.welch(x, fs=float(sfreq), window=taper, nperseg=nperseg, noverlap=noverlap,
+                              detrend="constant", scaling="density", average="mean", axis=-1)
+
+
+def welch_settings(where, sfreq, segment, overlap, window, n_times):
+    """Check Welch settings and turn them into (taper, nperseg, noverlap), samples.
+
+    Shared by :func:`welch_psd` and the cross-spectra, so both read the same segments.
+    """
     sfreq, segment = float(sfreq), float(segment)
     if not (np.isfinite(sfreq) and sfreq > 0):
         raise DefinitionError(problem(where, f"sfreq = {sfreq} Hz is not positive",
@@ -58,8 +69,7 @@ def welch_psd(x, sfreq, segment, overlap=0.5, window="hann"):
         raise DefinitionError(problem(
             where, f"segment = {segment} s is {nperseg} samples at {sfreq:g} Hz",
             "choose a segment of at least 2 samples", key="segment"))
-    if x.ndim == 0 or x.shape[-1] < nperseg:
-        n_times = x.shape[-1] if x.ndim else 0
+    if n_times < nperseg:
         raise InputDataError(problem(
             where, f"segment = {segment:g} s ({nperseg} samples) is longer than the "
             f"data ({n_times} samples, {n_times / sfreq:g} s)",
@@ -67,16 +77,14 @@ def welch_psd(x, sfreq, segment, overlap=0.5, window="hann"):
     if not 0 <= float(overlap) < 1:
         raise DefinitionError(problem(where, f"overlap = {overlap} is outside [0, 1)",
                                       "pass a fraction such as 0.5", key="overlap"))
-    noverlap = int(round(float(overlap) * nperseg))
+    noverlap = min(int(round(float(overlap) * nperseg)), nperseg - 1)
     try:
         taper = scipy.signal.get_window(window, nperseg)
     except ValueError as err:
         raise DefinitionError(problem(where, f"window = {window!r} is not a known window "
                                       f"({err})", 'use e.g. "hann", "hamming" or "boxcar"',
                                       key="window")) from None
-    return scipy.signal.welch(x, fs=sfreq, window=taper, nperseg=nperseg,
-                              noverlap=min(noverlap, nperseg - 1), detrend="constant",
-                              scaling="density", average="mean", axis=-1)
+    return taper, nperseg, noverlap
 
 
 def _uniform_spacing(freqs, where):

@@ -240,3 +240,24 @@ def test_group_summary_reports_effect_sizes_per_site_and_pooled(processed_study)
     assert mmn.loc["pooled", "n_excluded"] == 1 and mmn.loc["pooled", "n_comparison"] == 2
     assert mmn.loc["pooled", "difference"] > 0 and np.isfinite(mmn.loc["pooled", "g"])
     assert "Hedges" in (study.output / "group" / "report.html").read_text()
+
+
+def test_a_new_feature_of_an_existing_kind_needs_only_toml(processed_study, tmp_path):
+    """A P3a window measure added in a feature-set file, with no code change."""
+    from dataclasses import replace
+
+    from heschl.config import load_feature_set
+    from heschl.pipeline import process_recording
+
+    study, _ = processed_study
+    (tmp_path / "p3a.toml").write_text(
+        'name = "p3a-extra"\nparadigm = "oddball"\n[regions]\ncentral = ["FCz", "Cz", "CP1", "CP2"]\n'
+        '[[measures]]\nname = "p3a_central"\nkind = "mean-amplitude"\nsignal = "mismatch"\n'
+        'region = "central"\nwindow = [0.25, 0.35]\n')
+    analysis = next(a for a in study.analyses if a.paradigm.name == "oddball")
+    extra = load_feature_set(tmp_path / "p3a.toml", analysis.paradigm)
+    changed = replace(study, analyses=(replace(analysis, feature_sets=analysis.feature_sets + (extra,)),))
+    recording = next(r for r in discover(study) if r.paradigm == "oddball")
+    rows = {r["feature"]: r for r in process_recording(changed, recording)["rows"]}
+    assert rows["p3a_central"]["feature_set"] == "p3a-extra" and rows["p3a_central"]["unit"] == "uV"
+    assert np.isfinite(rows["p3a_central"]["value"]) and rows["p3a_central"]["n_trials"] > 30

@@ -162,7 +162,8 @@ class FeatureSet:
     bands: dict
     spectrum: dict
     measures: tuple
-    document: dict = field(repr=False, compare=False)
+    reliability: dict = field(default_factory=dict)
+    document: dict = field(repr=False, compare=False, default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -546,7 +547,7 @@ def _stimulation(top, cleaning):
 
 
 # --------------------------------------------------------------------------- feature set
-_FEATURE_KEYS = {"name", "paradigm", "summary", "regions", "bands", "spectrum", "measures"}
+_FEATURE_KEYS = {"name", "paradigm", "summary", "regions", "bands", "spectrum", "measures", "reliability"}
 _MEASURE_KEYS = {"name", "kind", "signal", "region", "window", "frequency", "band", "polarity",
                  "numerator", "denominator", "relative_to", "unit", "fraction"}
 
@@ -571,6 +572,11 @@ def load_feature_set(path, paradigm):
     spectrum = top.sub("spectrum", {"segment", "overlap"}, default={})
     spec = {"segment": spectrum.number("segment", default=2.0, unit="s", low=0.0, strict_low=True),
             "overlap": spectrum.number("overlap", default=0.5, low=0.0, high=0.95)}
+    rel = top.sub("reliability", {"minimum", "bootstrap", "splits", "level"}, default={})
+    reliability = {"minimum": rel.number("minimum", default=0.7, low=0.0, high=1.0),
+                   "bootstrap": rel.integer("bootstrap", default=150, low=20),
+                   "splits": rel.integer("splits", default=30, low=2),
+                   "level": rel.number("level", default=0.95, low=0.5, high=0.999)}
     raw_measures = top.raw("measures", default=None)
     if not isinstance(raw_measures, list) or not raw_measures:
         top.fail("measures", "expected at least one [[measures]] entry", "add a [[measures]] table")
@@ -584,7 +590,7 @@ def load_feature_set(path, paradigm):
             measures.append(measure)
     return FeatureSet(name=name, paradigm=target, summary=top.string("summary", default=""),
                       source=str(path), regions=regions, bands=bands, spectrum=spec,
-                      measures=tuple(measures), document=doc)
+                      measures=tuple(measures), reliability=reliability, document=doc)
 
 
 def _expand_measure(section, paradigm, regions, bands, spec):

@@ -37,18 +37,41 @@ class Source:
     ch_names : list of str
     sfreq : float, Hz
     paradigm : heschl.config.Paradigm
+
+    Notes
+    -----
+    :meth:`subset` gives a Source over chosen trials (drawn with repetition for the
+    bootstrap, or a half for split-half estimates) that shares the per-trial wavelet
+    coefficients and spectra of its parent, so reliability estimates cost averages, not
+    new transforms.
     """
 
-    def __init__(self, data, times, ch_names, sfreq, paradigm):
-        self.data, self.times, self.ch_names = data, times, list(ch_names)
+    def __init__(self, data, times, ch_names, sfreq, paradigm, _shared=None, _index=None):
+        self.times, self.ch_names = times, list(ch_names)
         self.sfreq, self.paradigm = sfreq, paradigm
         self._cache = {}
+        self._shared = {"data": data} if _shared is None else _shared
+        self._index = _index
+        self.data = data if _index is None else None  # only the full Source holds its trial arrays
 
-    def n_trials(self, signal):
+    def subset(self, index):
+        """A Source over trials ``index[condition]`` (positions among all kept trials; repeats allowed)."""
+        picks = {c: np.asarray(i, dtype=int) for c, i in index.items()}
+        return Source(None, self.times, self.ch_names, self.sfreq, self.paradigm, self._shared, picks)
+
+    def count(self, condition):
+        """Number of trials of a condition in this Source."""
+        return len(self._shared["data"][condition]) if self._index is None else len(self._index[condition])
+
+    def conditions_of(self, signal):
+        """The conditions a signal (condition or contrast) is made of."""
         if signal in self.paradigm.contrasts:
             c = self.paradigm.contrasts[signal]
-            return min(len(self.data[c.plus]), len(self.data[c.minus]))
-        return len(self.data[signal])
+            return [c.plus, c.minus]
+        return [signal]
+
+    def n_trials(self, signal):
+        return min(self.count(c) for c in self.conditions_of(signal))
 
     def average(self, signal):
         """Condition average or difference wave, shape (n_channels, n_times), V."""
@@ -58,24 +81,39 @@ class Source:
                 c = self.paradigm.contrasts[signal]
                 self._cache[key] = self.average(c.plus) - self.average(c.minus)
             else:
-                trials = self.data[signal]
-                self._cache[key] = trials.mean(axis=0) if len(trials) else np.full(trials.shape[1:], np.nan)
+                trials = self._shared["data"][signal]
+                if not self.count(signal):
+                    self._cache[key] = np.full(trials.shape[1:], np.nan)
+                elif self._index is None:
+                    self._cache[key] = trials.mean(axis=0)
+                else:  # weights by how often each trial was drawn: no copy of the trials
+                    weights = np.bincount(self._index[signal], minlength=len(trials)) / self.count(signal)
+                    flat = trials.reshape(len(trials), -1)
+                    self._cache[key] = (weights @ flat).reshape(trials.shape[1:])
         return self._cache[key]
 
-    def coefficients(self, signal, frequency):
-        """Morlet coefficients, shape (n_trials, n_channels, n_times)."""
+    def coefficients(self, signal, frequency, picks=None):
+        """Morlet coefficients of the trials, shape (n_trials, n_picked_channels, n_times)."""
         key = ("morlet", signal, frequency)
-        if key not in self._cache:
-            coefs = morlet_transform(self.data[signal], self.sfreq, [frequency], n_cycles=N_CYCLES)
-            self._cache[key] = coefs[..., 0, :]
-        return self._cache[key]
+        if key not in self._shared:
+            coefs = morlet_transform(self._shared["data"][signal], self.sfreq, [frequency], n_cycles=N_CYCLES)
+            self._shared[key] = coefs[..., 0, :]
+        coefs = self._shared[key]
+        rows = slice(None) if self._index is None else self._index[signal]
+        if picks is None:
+            return coefs[rows]
+        return coefs[rows][:, picks] if self._index is None else coefs[np.ix_(rows, picks)]
 
     def spectrum(self, signal, spec):
         """Mean Welch density over kept segments: (freqs Hz, psd V^2/Hz, shape (n_channels, n_freqs))."""
         key = ("spectrum", signal, spec["segment"], spec["overlap"])
+        if key not in self._shared:
+            self._shared[key] = welch_psd(self._shared["data"][signal], self.sfreq, spec["segment"],
+                                          overlap=spec["overlap"])
         if key not in self._cache:
-            freqs, psd = welch_psd(self.data[signal], self.sfreq, spec["segment"], overlap=spec["overlap"])
-            self._cache[key] = (freqs, psd.mean(axis=0))
+            freqs, per_trial = self._shared[key]
+            rows = slice(None) if self._index is None else self._index[signal]
+            self._cache[key] = (freqs, per_trial[rows].mean(axis=0))
         return self._cache[key]
 
     def window_mask(self, window):
@@ -110,7 +148,7 @@ def _peak_latency(m, source, regions, bands):
 def _phase_window(m, source, regions, fn):
     p = m.params
     picks = [source.ch_names.index(c) for c in regions[p["region"]] if c in source.ch_names]
-    coefs = source.coefficients(p["signal"], p["frequency"])[:, picks, :]
+    coefs = source.coefficients(p["signal"], p["frequency"], picks)
     values = fn(coefs, axis=0)  # (n_channels, n_times)
     return float(values[:, source.window_mask(p["window"])].mean())
 
@@ -169,9 +207,11 @@ def _rayleigh_p(m, source, regions, bands):
 def _evoked_spectrum(m, source, regions):
     """Periodogram of the region-mean average in the window (rectangular window), V^2."""
     p = m.params
-    wave = _region(source, regions, p["region"], source.average(p["signal"]))[source.window_mask(p["window"])]
-    spectrum = np.abs(np.fft.rfft(wave)) ** 2
-    return np.fft.rfftfreq(wave.size, 1.0 / source.sfreq), spectrum
+    key = ("evoked-spectrum", p["signal"], p["region"], tuple(p["window"]))
+    if key not in source._cache:
+        wave = _region(source, regions, p["region"], source.average(p["signal"]))[source.window_mask(p["window"])]
+        source._cache[key] = (np.fft.rfftfreq(wave.size, 1.0 / source.sfreq), np.abs(np.fft.rfft(wave)) ** 2)
+    return source._cache[key]
 
 
 def _snr(m, source, regions, bands):
@@ -194,14 +234,19 @@ def _peak_frequency(m, source, regions, bands):
     return float(peak_frequency(freqs, psd, bands[m.params["band"]]))
 
 
+def _aperiodic(m, source, regions):
+    key = ("aperiodic", m.params["signal"], m.params["region"])
+    if key not in source._cache:
+        source._cache[key] = aperiodic_fit(*_region_spectrum(m, source, regions))
+    return source._cache[key]
+
+
 def _aperiodic_exponent(m, source, regions, bands):
-    freqs, psd = _region_spectrum(m, source, regions)
-    return float(aperiodic_fit(freqs, psd)[0])
+    return float(_aperiodic(m, source, regions)[0])
 
 
 def _aperiodic_offset(m, source, regions, bands):
-    freqs, psd = _region_spectrum(m, source, regions)
-    return float(aperiodic_fit(freqs, psd)[1])
+    return float(_aperiodic(m, source, regions)[1])
 
 
 MEASURES = {
@@ -230,8 +275,92 @@ def _signals_of(m):
     return [s for s in (p.get("signal"), p.get("numerator"), p.get("denominator")) if s]
 
 
-def compute_features(feature_set, source, min_trials):
-    """Every measure of a feature set, as rows for the features table.
+# Kinds whose value has no meaningful zero: a subject-level "told apart from zero"
+# reliability makes no sense for them; their reliability comes from the cohort split-half
+# in the group summary.
+NO_ZERO_KINDS = {"peak-latency", "fractional-area-latency", "peak-frequency", "aperiodic-exponent",
+                 "aperiodic-offset", "rayleigh-p", "snr-p", "band-ratio", "snr"}
+
+
+def _measure(m, source, feature_set):
+    """One measure's value in its reported unit."""
+    value = MEASURES[m.kind](m, source, feature_set.regions, feature_set.bands)
+    return value + UNIT_SHIFT[m.unit] if m.unit in UNIT_SHIFT else value * UNIT_SCALE[m.unit]
+
+
+def _evaluate(measures, source, feature_set):
+    out = []
+    for m in measures:
+        try:
+            out.append(_measure(m, source, feature_set))
+        except (ValueError, FloatingPointError, ZeroDivisionError):
+            out.append(float("nan"))  # a resample can lack what a measure needs
+    return np.asarray(out, dtype=float)
+
+
+def resampled_values(measures, source, feature_set, conditions, seed=0):
+    """Bootstrap, odd/even and random-split values of every measure.
+
+    Trials are resampled within each condition, independently (deviants and standards of
+    a difference wave each keep their own count). The same draws serve every measure.
+
+    Returns
+    -------
+    boot : ndarray, shape (n_boot, n_measures)
+    odd, even : ndarray, shape (n_measures,)
+    halves : ndarray, shape (n_splits, 2, n_measures)
+    """
+    settings = feature_set.reliability
+    rng = np.random.default_rng(seed)
+    sizes = {c: source.count(c) for c in conditions}
+    full = {c: np.arange(n) for c, n in sizes.items()}
+    boot = np.array([_evaluate(measures, source.subset({c: rng.integers(0, n, n) for c, n in sizes.items()}),
+                               feature_set) for _ in range(settings["bootstrap"])])
+    odd = _evaluate(measures, source.subset({c: i[0::2] for c, i in full.items()}), feature_set)
+    even = _evaluate(measures, source.subset({c: i[1::2] for c, i in full.items()}), feature_set)
+    halves = []
+    for _ in range(settings["splits"]):
+        perm = {c: rng.permutation(n) for c, n in sizes.items()}
+        first = {c: p[: len(p) // 2] for c, p in perm.items()}
+        second = {c: p[len(p) // 2: 2 * (len(p) // 2)] for c, p in perm.items()}
+        halves.append([_evaluate(measures, source.subset(first), feature_set),
+                       _evaluate(measures, source.subset(second), feature_set)])
+    return boot, odd, even, np.asarray(halves)
+
+
+def _reliability_columns(m, value, boot, odd, even, halves, settings):
+    """Interval, standard error and subject-level reliability of one value.
+
+    * ``ci_low``/``ci_high``: bootstrap percentile interval over trials.
+    * ``se``: bootstrap standard deviation, the bootstrapped standardized measurement
+      error (Luck et al. 2021); for a mean amplitude it approximates the analytic SME.
+    * ``half_odd``/``half_even``: the value from odd and from even trials; the group
+      summary turns them into the Spearman-Brown-corrected cohort split-half.
+    * ``reliability``: subject-level, ``t / (t + se_split**2)`` with ``t = max(value**2 -
+      se_split**2, 0)`` and ``se_split`` from random half splits (idea of Clayson, Brush &
+      Hajcak 2021): how well the value is told apart from zero; NaN for kinds without a
+      meaningful zero (latencies, frequencies, exponents, p-values, ratios).
+    """
+    level = settings["level"]
+    finite = boot[np.isfinite(boot)]
+    if finite.size < 10:
+        low = high = se = float("nan")
+    else:
+        low, high = np.percentile(finite, [50 * (1 - level), 100 - 50 * (1 - level)])
+        se = float(np.std(finite, ddof=1))
+    diff = halves[:, 0] - halves[:, 1]
+    diff = diff[np.isfinite(diff)]
+    reliability = float("nan")
+    if m.kind not in NO_ZERO_KINDS and diff.size and np.isfinite(value):
+        se_split = float(np.sqrt(np.mean(diff ** 2)) / 2)
+        t = max(value ** 2 - se_split ** 2, 0.0)
+        reliability = t / (t + se_split ** 2) if t + se_split ** 2 > 0 else float("nan")
+    return {"ci_low": float(low), "ci_high": float(high), "se": se, "half_odd": float(odd),
+            "half_even": float(even), "reliability": reliability}
+
+
+def compute_features(feature_set, source, min_trials, seed=0):
+    """Every measure of a feature set, with its reliability, as rows for the features table.
 
     Parameters
     ----------
@@ -240,22 +369,36 @@ def compute_features(feature_set, source, min_trials):
     min_trials : dict
         Condition -> minimum kept trials (from the paradigm); a measure reading a
         condition under its minimum is flagged.
+    seed : int, default=0
+        Seed of the resampling (bootstrap, random splits).
     """
+    measures = list(feature_set.measures)
+    values = _evaluate(measures, source, feature_set)
+    usable = [all(source.count(c) >= 2 for s in _signals_of(m) for c in source.conditions_of(s))
+              for m in measures]
+    conditions = sorted({c for m in measures for s in _signals_of(m) for c in source.conditions_of(s)})
+    resampled = None
+    if any(usable):
+        resampled = resampled_values(measures, source, feature_set, conditions, seed)
     rows = []
-    for m in feature_set.measures:
+    for k, m in enumerate(measures):
         signals = _signals_of(m)
-        counts = {s: source.n_trials(s) for s in signals}
         flags = _trial_flags(source, signals, min_trials)
-        if any(n == 0 for n in counts.values()):
-            value = float("nan")
-            flags.append("no trials left")
-        else:
-            value = MEASURES[m.kind](m, source, feature_set.regions, feature_set.bands)
-            value = value + UNIT_SHIFT[m.unit] if m.unit in UNIT_SHIFT else value * UNIT_SCALE[m.unit]
-        rows.append({"feature": m.name, "value": value, "unit": m.unit, "kind": m.kind,
+        value = values[k] if min(source.n_trials(s) for s in signals) > 0 else float("nan")
+        if not np.isfinite(value):
+            flags.append("could not be computed")
+        extra = dict.fromkeys(("ci_low", "ci_high", "se", "half_odd", "half_even", "reliability"), float("nan"))
+        if usable[k] and resampled is not None:
+            boot, odd, even, halves = resampled
+            extra = _reliability_columns(m, value, boot[:, k], odd[k], even[k], halves[:, :, k],
+                                         feature_set.reliability)
+        low_reliability = (bool(extra["reliability"] < feature_set.reliability["minimum"])
+                           if np.isfinite(extra["reliability"]) else None)
+        rows.append({"feature": m.name, "value": float(value), "unit": m.unit, "kind": m.kind,
                      "signal": "/".join(signals), "region": m.params["region"],
-                     "window": _describe(m), "n_trials": min(counts.values()),
-                     "feature_set": feature_set.name, "flags": "; ".join(flags)})
+                     "window": _describe(m), "n_trials": min(source.n_trials(s) for s in signals),
+                     **extra, "low_reliability": low_reliability, "feature_set": feature_set.name,
+                     "flags": "; ".join(flags)})
     return rows
 
 
@@ -265,7 +408,7 @@ def _trial_flags(source, signals, min_trials):
     for s in signals:
         conds = [paradigm.contrasts[s].plus, paradigm.contrasts[s].minus] if s in paradigm.contrasts else [s]
         for c in conds:
-            kept = len(source.data[c])
+            kept = source.count(c)
             if kept < min_trials.get(c, 0):
                 flags.append(f"{c}: {kept} trials < minimum {min_trials[c]}")
     return flags

@@ -223,7 +223,7 @@ def _check_table(table):
 def _columns(key, groups):
     per_group = [f"{stat}_{g}" for g in groups for stat in ("n", "mean", "sd", "mean_low", "mean_high")]
     return [*key, "scope", "contrast", *per_group, "difference", "g", "g_se", "g_low", "g_high",
-            "site_adjusted_g", "n_excluded", "n_missing"]
+            "site_adjusted_g", "split_half", "n_excluded", "n_missing"]
 
 
 def _site_adjusted_g(rows, comparison, reference):
@@ -256,8 +256,25 @@ def _scope_row(rows, n_excluded, n_missing, groups, comparison, reference, level
     g, se, (low, high) = hedges_g(values[comparison], values[reference], level=level)
     row.update({"g": g, "g_se": se, "g_low": low, "g_high": high,
                 "site_adjusted_g": _site_adjusted_g(rows, comparison, reference),
+                "split_half": _cohort_split_half(rows),
                 "n_excluded": int(n_excluded), "n_missing": int(n_missing)})
     return row
+
+
+def _cohort_split_half(rows):
+    """Spearman-Brown-corrected correlation across recordings of the odd- and even-trial
+    values (REFERENCES F31: Clayson & Miller 2017); NaN without those columns or with
+    fewer than 3 recordings."""
+    import pandas as pd
+
+    from .numeric.reliability import split_half_cohort
+
+    if not {"half_odd", "half_even"} <= set(rows.columns):
+        return math.nan
+    halves = rows[["half_odd", "half_even"]].apply(pd.to_numeric, errors="coerce").dropna()
+    if len(halves) < 3 or halves.std().min() == 0:
+        return math.nan
+    return float(split_half_cohort(halves["half_odd"].to_numpy(float), halves["half_even"].to_numpy(float)))
 
 
 def group_summary(table, *, groups=("control", "comparison"), reference="control", level=0.95,

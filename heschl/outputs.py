@@ -16,6 +16,7 @@ __all__ = ["write_atomic", "recording_paths", "write_recording", "write_dataset_
            "write_group", "FEATURE_COLUMNS", "FEATURE_SIDECAR"]
 
 FEATURE_COLUMNS = ["feature", "value", "unit", "kind", "signal", "region", "window", "n_trials",
+                   "ci_low", "ci_high", "se", "half_odd", "half_even", "reliability", "low_reliability",
                    "feature_set", "flags"]
 FEATURE_SIDECAR = {
     "feature": {"Description": "Name of the measure, from the feature set."},
@@ -27,8 +28,23 @@ FEATURE_SIDECAR = {
     "region": {"Description": "Named channel region of the feature set; values are averaged over its channels."},
     "window": {"Description": "Time window (s after the marker) and frequency, or band name."},
     "n_trials": {"Description": "Kept trials (epochs or segments) the value rests on; the smaller count for contrasts."},
+    "ci_low": {"Description": "Lower end of the bootstrap percentile interval (level set in the feature set, default 95 %), "
+                         "trials resampled within each condition; unit of value."},
+    "ci_high": {"Description": "Upper end of the bootstrap percentile interval; unit of value."},
+    "se": {"Description": "Bootstrap standard deviation of the value: the bootstrapped standardized measurement "
+                     "error (Luck et al. 2021); unit of value."},
+    "half_odd": {"Description": "The value from odd-numbered trials only (for the cohort split-half in group/summary.tsv)."},
+    "half_even": {"Description": "The value from even-numbered trials only."},
+    "reliability": {"Description": "Subject-level reliability t/(t+se^2), t = max(value^2 - se^2, 0), se from random "
+                                  "half splits (idea of Clayson, Brush & Hajcak 2021): how well the value stands "
+                                  "apart from zero. Not a correlation across subjects. n/a for kinds without a "
+                                  "meaningful zero (latencies, frequencies, exponents, p-values, ratios)."},
+    "low_reliability": {"Description": "True when reliability is below the minimum set in the feature set "
+                                      "([reliability] minimum, default 0.70: Clayson & Miller 2017); n/a when "
+                                      "reliability is n/a. A caution, not a reason to drop the value."},
     "feature_set": {"Description": "Feature set that defines the measure."},
-    "flags": {"Description": "Why the value should not be used as it is (e.g. trials below the paradigm minimum); empty when none."},
+    "flags": {"Description": "Why the value should not be used as it is (e.g. trials below the paradigm minimum); "
+                         "empty when none. Group statistics leave flagged values out."},
 }
 
 

@@ -299,7 +299,7 @@ def _curves(analysis, source):
 
         freq = paradigm.stimulation.get("frequency", 40.0)
         curves["frequency"] = freq
-        curves["itpc"] = {c: itpc(source.coefficients(c, freq)[:, picks, :], axis=0).mean(axis=0).tolist()
+        curves["itpc"] = {c: itpc(source.coefficients(c, freq, picks), axis=0).mean(axis=0).tolist()
                           for c in paradigm.conditions if source.n_trials(c) > 1}
     else:
         spec = next((fs.spectrum for fs in analysis.feature_sets), {"segment": 2.0, "overlap": 0.5})

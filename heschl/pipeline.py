@@ -182,6 +182,8 @@ def process_recording(study, recording):
         rows.extend(_features(fs, source, paradigm))
     curves = _curves(analysis, source)
     clock.lap("features")
+    arrays = _arrays(analysis, source, recording, hashes, study)
+    clock.lap("arrays")
     counts = _counts(entries, paradigm)
     snr = _snr(source, paradigm)
     qc = _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr)
@@ -198,7 +200,7 @@ def process_recording(study, recording):
         "versions": package_versions(),
         "timings_s": clock.times,
     }
-    return {"rows": rows, "qc": qc, "provenance": provenance, "curves": curves}
+    return {"rows": rows, "qc": qc, "provenance": provenance, "curves": curves, "arrays": arrays}
 
 
 def _display(path):
@@ -261,6 +263,29 @@ def _counts(entries, paradigm):
             key = entry["reason"].split(":")[0]
             c["reasons"][key] = c["reasons"].get(key, 0) + 1
     return counts
+
+
+def _arrays(analysis, source, recording, hashes, study):
+    """Model-ready arrays (xarray datasets) with provenance attributes."""
+    import json
+
+    from .arrays import model_arrays
+
+    paradigm = analysis.paradigm
+    kwargs = {}
+    if paradigm.design == "steady-state" and paradigm.stimulation.get("frequency"):
+        kwargs["stimulation_frequency"] = paradigm.stimulation["frequency"]
+    if paradigm.design == "resting":
+        spec = next((fs.spectrum for fs in analysis.feature_sets), {"segment": 2.0, "overlap": 0.5})
+        low, high = paradigm.cleaning.pass_band
+        kwargs.update(spectrum=spec, csd=dict(spec, fmin=low, fmax=high))
+    definitions = definitions_of(study, recording)
+    provenance = {"heschl_version": __version__, "participant_id": recording.participant_id,
+                  "site": recording.site, "group": recording.group, "paradigm": recording.paradigm,
+                  "input_key": input_key(hashes, definitions),
+                  "definitions_sha256": hashlib.sha256(json.dumps(definitions, sort_keys=True,
+                                                                  default=str).encode()).hexdigest()}
+    return model_arrays(source, design=paradigm.design, provenance=provenance, **kwargs)
 
 
 def _snr(source, paradigm):

@@ -549,7 +549,7 @@ def _stimulation(top, cleaning):
 # --------------------------------------------------------------------------- feature set
 _FEATURE_KEYS = {"name", "paradigm", "summary", "regions", "bands", "spectrum", "measures", "reliability"}
 _MEASURE_KEYS = {"name", "kind", "signal", "region", "window", "frequency", "band", "polarity",
-                 "numerator", "denominator", "relative_to", "unit", "fraction"}
+                 "numerator", "denominator", "relative_to", "unit", "fraction", "per_channel"}
 
 
 def load_feature_set(path, paradigm):
@@ -597,7 +597,7 @@ def _expand_measure(section, paradigm, regions, bands, spec):
     kind = section.string("kind", choices=list(MEASURE_KINDS))
     required, optional, default_unit, units = MEASURE_KINDS[kind]
     for key in section.data:
-        if key not in required | optional | {"name", "kind", "unit"}:
+        if key not in required | optional | {"name", "kind", "unit", "per_channel"}:
             section.fail(key, f'is not used by kind "{kind}"',
                          f"remove it; kind \"{kind}\" takes {', '.join(sorted(required | optional))}")
     for key in sorted(required):
@@ -636,11 +636,19 @@ def _expand_measure(section, paradigm, regions, bands, spec):
     if explicit is not None and len(signals) * len(band_names) > 1:
         section.fail("name", "one name for a measure that expands over several signals or bands",
                      "remove name (names are then built from kind, band, signal and region)")
+    per_channel = section.raw("per_channel", default=False)
+    if not isinstance(per_channel, bool):
+        section.fail("per_channel", f"expected true or false, got {_show(per_channel)}",
+                     "write per_channel = true to add one value per channel of the region")
     for signal in signals:
         for band in band_names:
             params = dict(fixed, signal=signal, band=band, spectrum=spec)
             name = explicit or _auto_name(kind, band, signal, fixed["region"])
             yield Measure(name=name, kind=kind, params=params, unit=unit)
+            for channel in regions[region] if per_channel else ():
+                # One value per channel: the channel is a region of its own.
+                regions.setdefault(channel, (channel,))
+                yield Measure(name=f"{name}.{channel}", kind=kind, params=dict(params, region=channel), unit=unit)
 
 
 def _auto_name(kind, band, signal, region):

@@ -287,3 +287,55 @@ print("ok")
 """
     done = subprocess.run([sys.executable, "-W", "error", "-c", code], capture_output=True, text=True)
     assert done.stdout.strip() == "ok", done.stderr
+
+
+def _blink_course(blinks_s, n_times, sfreq):
+    """Unit blink time course at the truth's blink peaks (the generator's own blink shape)."""
+    from heschl.synth.artefacts import _blink_kernel
+
+    kernel = _blink_kernel(sfreq)
+    course = np.zeros(n_times)
+    for peak in blinks_s:
+        start = int(round((peak - 0.3) * sfreq))
+        lo, hi = max(start, 0), min(start + kernel.size, n_times)
+        if hi > lo:
+            course[lo:hi] += kernel[lo - start:hi - start]
+    return course
+
+
+def test_blinks_are_removed_from_kept_epochs(processed_study, truth):
+    """Issue acceptance: residual correlation of kept epochs with the blink source < 0.2."""
+    from heschl.clean import clean
+    from heschl.harmonise import harmonise, read_raw
+    from heschl.pipeline import _trials
+
+    study, _ = processed_study
+    t = next(t for t in truth["recordings"] if t["paradigm"] == "oddball" and len(t["blinks_s"]) >= 10
+             and not t["low_count_condition"])
+    recording = next(r for r in discover(study) if r.participant_id == t["participant_id"]
+                     and r.paradigm == "oddball")
+    paradigm = study.analyses[0].paradigm
+    site = study.sites[recording.site]
+    raw, markers, record = harmonise(read_raw(recording.path), site, paradigm, study.common_channels, "x")
+    clean(raw, paradigm, where="x", restored=record["restored_reference"], line_frequency=site.line_frequency)
+    data, times, entries, ch_names, _ = _trials(raw, markers, paradigm)
+    sfreq = raw.info["sfreq"]
+    course = _blink_course(t["blinks_s"], raw.n_times, sfreq)
+    fp1 = ch_names.index("Fp1")
+
+    def kept_correlation():
+        eeg, blink = [], []
+        for condition in paradigm.conditions:
+            kept = [e for e in entries if e["condition"] == condition and e["kept"]]
+            for entry, trial in zip(kept, data[condition]):
+                first = int(round(entry["onset_s"] * sfreq)) + int(round(times[0] * sfreq))
+                eeg.append(trial[fp1])
+                blink.append(course[first:first + len(times)])
+        return abs(np.corrcoef(np.concatenate(eeg), np.concatenate(blink))[0, 1])
+
+    after = kept_correlation()
+    # The source is real: in the continuous (uncut) Fp1 the blinks dominate.
+    before = abs(np.corrcoef(raw.get_data(picks=["Fp1"])[0], course)[0, 1])
+    print(f"blink source correlation at Fp1: continuous {before:.2f}, kept epochs {after:.2f}")
+    assert before > 0.5
+    assert after < 0.2

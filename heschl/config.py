@@ -40,6 +40,7 @@ LINE_NOISE_METHODS = ("notch", "fit", "none")
 OCULAR_METHODS = ("auto", "regression", "ica", "none")
 BAD_CHANNEL_POLICIES = ("detect", "keep")
 POLARITIES = ("negative", "positive")
+BAND_CLOSURES = ("left", "right", "both", "neither")  # which band edges belong to the band
 
 # Parameters of every measure kind: (required keys, optional keys, default unit, allowed units).
 # heschl.features.MEASURES holds the functions; a test keeps the two in step.
@@ -163,6 +164,7 @@ class FeatureSet:
     spectrum: dict
     measures: tuple
     reliability: dict = field(default_factory=dict)
+    band_closures: dict = field(default_factory=dict)   # band -> "left" | "right" | "both" | "neither"
     document: dict = field(repr=False, compare=False, default_factory=dict)
 
 
@@ -565,10 +567,16 @@ def load_feature_set(path, paradigm):
     region_table = top.sub("regions", set(top.table("regions", default={})), default={})
     for rname in region_table.data:
         regions[rname] = region_table.strings(rname)
-    bands = {}
+    bands, closures = {}, {}
     band_table = top.sub("bands", set(top.table("bands", default={})), default={})
     for bname in band_table.data:
-        bands[bname] = band_table.pair(bname, unit="Hz", low=0.0)
+        if isinstance(band_table.data[bname], dict):  # { range = [lo, hi], closed = "both" }
+            entry = band_table.sub(bname, {"range", "closed"})
+            bands[bname] = entry.pair("range", unit="Hz", low=0.0)
+            closures[bname] = entry.string("closed", default="left", choices=BAND_CLOSURES)
+        else:
+            bands[bname] = band_table.pair(bname, unit="Hz", low=0.0)
+            closures[bname] = "left"
     spectrum = top.sub("spectrum", {"segment", "overlap"}, default={})
     spec = {"segment": spectrum.number("segment", default=2.0, unit="s", low=0.0, strict_low=True),
             "overlap": spectrum.number("overlap", default=0.5, low=0.0, high=0.95)}
@@ -583,17 +591,18 @@ def load_feature_set(path, paradigm):
     measures, names = [], set()
     for i, item in enumerate(raw_measures):
         section = _Section(item, where, f"measures[{i}]", _MEASURE_KEYS)
-        for measure in _expand_measure(section, paradigm, regions, bands, spec):
+        for measure in _expand_measure(section, paradigm, regions, bands, spec, closures):
             if measure.name in names:
                 section.fail("name", f'measure name "{measure.name}" is used twice', "give each measure its own name")
             names.add(measure.name)
             measures.append(measure)
     return FeatureSet(name=name, paradigm=target, summary=top.string("summary", default=""),
                       source=str(path), regions=regions, bands=bands, spectrum=spec,
-                      measures=tuple(measures), reliability=reliability, document=doc)
+                      measures=tuple(measures), reliability=reliability, band_closures=closures,
+                      document=doc)
 
 
-def _expand_measure(section, paradigm, regions, bands, spec):
+def _expand_measure(section, paradigm, regions, bands, spec, closures=None):
     kind = section.string("kind", choices=list(MEASURE_KINDS))
     required, optional, default_unit, units = MEASURE_KINDS[kind]
     for key in section.data:
@@ -642,7 +651,7 @@ def _expand_measure(section, paradigm, regions, bands, spec):
                      "write per_channel = true to add one value per channel of the region")
     for signal in signals:
         for band in band_names:
-            params = dict(fixed, signal=signal, band=band, spectrum=spec)
+            params = dict(fixed, signal=signal, band=band, spectrum=spec, closures=dict(closures or {}))
             name = explicit or _auto_name(kind, band, signal, fixed["region"])
             yield Measure(name=name, kind=kind, params=params, unit=unit)
             for channel in regions[region] if per_channel else ():

@@ -14,7 +14,7 @@ from .numeric.erp import fractional_area_latency, mean_amplitude, peak, region_m
 from .numeric.phase import (evoked_power, induced_power, itpc, morlet_transform, pairwise_phase_consistency,
                             rayleigh)
 from .numeric.rhythms import aperiodic_fit, peak_frequency
-from .numeric.spectra import band_power, relative_band_power, snr_neighbours, welch_psd
+from .numeric.spectra import band_power, snr_neighbours, welch_psd
 
 __all__ = ["MEASURES", "UNIT_SCALE", "Source", "compute_features"]
 
@@ -163,7 +163,8 @@ def _evoked_power(m, source, regions, bands):
 
 def _band(m, source, regions, bands, signal, band):
     freqs, psd = source.spectrum(signal, m.params["spectrum"])
-    return band_power(freqs, _region(source, regions, m.params["region"], psd), bands[band])
+    closed = m.params.get("closures", {}).get(band, "left")
+    return band_power(freqs, _region(source, regions, m.params["region"], psd), bands[band], closed=closed)
 
 
 def _band_power(m, source, regions, bands):
@@ -172,9 +173,8 @@ def _band_power(m, source, regions, bands):
 
 def _relative_band_power(m, source, regions, bands):
     p = m.params
-    freqs, psd = source.spectrum(p["signal"], p["spectrum"])
-    region = _region(source, regions, p["region"], psd)
-    return float(relative_band_power(freqs, region, bands[p["band"]], bands[p["relative_to"]]))
+    return float(_band(m, source, regions, bands, p["signal"], p["band"])
+                 / _band(m, source, regions, bands, p["signal"], p["relative_to"]))
 
 
 def _band_ratio(m, source, regions, bands):

@@ -10,6 +10,7 @@ import re
 import subprocess
 import sys
 
+import numpy as np
 import pytest
 
 from heschl import config
@@ -590,3 +591,23 @@ def test_config_import_does_not_import_mne():
     code = "import heschl.config, sys; print('mne' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
+
+
+def test_rest_band_defaults_follow_the_ifcn_glossary():
+    # REFERENCES F14 (Kane et al. 2017, IFCN revised glossary): theta 4 to <8 Hz, alpha
+    # 8-13 Hz, beta 14-30 Hz, gamma > 30 Hz; 8.0 -> alpha, 7.99 -> theta, 13.0 -> alpha,
+    # 13.5 -> no band, 30.0 -> beta, 30.01 -> gamma.
+    from heschl.numeric.spectra import band_power
+
+    rest = config.load_paradigm(config.builtin_dir("paradigms") / "rest.toml")
+    core = config.load_feature_set(config.builtin_dir("features") / "rest-core.toml", rest)
+    assert core.bands["theta"] == (4.0, 8.0) and core.bands["alpha"] == (8.0, 13.0)
+    assert core.bands["beta"] == (14.0, 30.0) and core.bands["gamma"][0] == 30.0
+    grid = np.arange(0, 5001) * 0.01  # 0-50 Hz in 0.01 Hz steps: every test frequency is a bin
+    owner = {}
+    for f in (7.99, 8.0, 13.0, 13.5, 30.0, 30.01):
+        psd = np.where(np.isclose(grid, f), 1.0, 0.0)  # all power in the bin at f
+        owner[f] = [b for b in ("theta", "alpha", "beta", "gamma")
+                    if band_power(grid, psd, core.bands[b], closed=core.band_closures[b]) > 0]
+    assert owner == {7.99: ["theta"], 8.0: ["alpha"], 13.0: ["alpha"], 13.5: [], 30.0: ["beta"],
+                     30.01: ["gamma"]}

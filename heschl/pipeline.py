@@ -187,6 +187,8 @@ def process_recording(study, recording):
     counts = _counts(entries, paradigm)
     snr = _snr(source, paradigm)
     qc = _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr)
+    qc["mastoid_inversion"] = _mastoid_inversion(analysis, source)
+    qc["flags"].extend(_inversion_flags(qc["mastoid_inversion"], cleaning["reference"]))
     definitions = definitions_of(study, recording)
     provenance = {
         "recording": {"site": recording.site, "participant_id": recording.participant_id,
@@ -285,7 +287,62 @@ def _arrays(analysis, source, recording, hashes, study):
                   "input_key": input_key(hashes, definitions),
                   "definitions_sha256": hashlib.sha256(json.dumps(definitions, sort_keys=True,
                                                                   default=str).encode()).hexdigest()}
-    return model_arrays(source, design=paradigm.design, provenance=provenance, **kwargs)
+    arrays = model_arrays(source, design=paradigm.design, provenance=provenance, **kwargs)
+    if "csd" in arrays:
+        arrays["csd"] = _with_coherence(arrays["csd"])
+    return arrays
+
+
+def _with_coherence(dataset):
+    """Add magnitude-squared coherence, derived from the cross-spectral matrices."""
+    from .numeric.crossspectra import coherence
+
+    matrices = dataset["real"].values + 1j * dataset["imag"].values
+    values = coherence(matrices)
+    out = dataset.assign(coherence=(dataset["real"].dims, np.asarray(values, dtype=float)))
+    out["coherence"].attrs.update(units="1", long_name="magnitude-squared coherence |S_ij|^2 / (S_ii S_jj)")
+    return out
+
+
+MASTOIDS = ("M1", "M2", "TP9", "TP10")
+
+
+def _mastoid_inversion(analysis, source):
+    """For each contrast read by a mean-amplitude measure: its value in the measure's region
+    and at the mastoids over the same window, in uV. Under an average or nose reference a
+    supratemporal generator makes the two opposite in sign (REFERENCES F19)."""
+    from .numeric.erp import mean_amplitude, region_mean
+
+    mastoids = [c for c in MASTOIDS if c in source.ch_names]
+    out = {}
+    if not mastoids:
+        return out
+    for fs in analysis.feature_sets:
+        for m in fs.measures:
+            signal = m.params.get("signal")
+            if m.kind != "mean-amplitude" or signal not in analysis.paradigm.contrasts or signal in out:
+                continue
+            if set(fs.regions[m.params["region"]]) & set(mastoids) or source.n_trials(signal) == 0:
+                continue
+            wave = source.average(signal)
+            region = mean_amplitude(region_mean(wave, source.ch_names, fs.regions[m.params["region"]]),
+                                    source.times, m.params["window"]) * 1e6
+            mastoid = mean_amplitude(region_mean(wave, source.ch_names, mastoids), source.times,
+                                     m.params["window"]) * 1e6
+            out[signal] = {"region": m.params["region"], "window_s": list(m.params["window"]),
+                           "region_uv": float(region), "mastoids": mastoids, "mastoid_uv": float(mastoid),
+                           "inverted": bool(np.sign(region) == -np.sign(mastoid) != 0)}
+    return out
+
+
+def _inversion_flags(inversion, reference):
+    if reference.get("reference") != "average":
+        return []
+    return [_flag("note", "no-mastoid-inversion",
+                  f"{signal} does not invert at the mastoids under the average reference "
+                  f"({v['region']} {v['region_uv']:.2f} uV, {'/'.join(v['mastoids'])} {v['mastoid_uv']:.2f} uV); "
+                  "a supratemporal generator would (Naatanen et al. 2007)")
+            for signal, v in inversion.items() if not v["inverted"]]
 
 
 def _snr(source, paradigm):

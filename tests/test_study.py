@@ -339,3 +339,28 @@ def test_blinks_are_removed_from_kept_epochs(processed_study, truth):
     print(f"blink source correlation at Fp1: continuous {before:.2f}, kept epochs {after:.2f}")
     assert before > 0.5
     assert after < 0.2
+
+
+def test_mastoid_inversion_is_a_qc_metric(processed_study):
+    # REFERENCES F19: under the average reference the mismatch inverts at the mastoids.
+    study, _ = processed_study
+    for recording in discover(study):
+        if recording.paradigm != "oddball":
+            continue
+        qc = json.loads(recording_paths(study.output, recording)["qc"].read_text())
+        inversion = qc["mastoid_inversion"]["mismatch"]
+        assert inversion["mastoids"] == ["TP9", "TP10"] and inversion["window_s"] == [0.1, 0.25]
+        assert inversion["region_uv"] < 0 < inversion["mastoid_uv"] and inversion["inverted"]
+
+
+def test_coherence_is_derived_from_the_cross_spectra(processed_study):
+    import xarray as xr
+
+    study, _ = processed_study
+    with xr.open_dataset(next(study.output.rglob("*task-rest_desc-csd_csd.nc"))) as ds:
+        s = ds["real"].values + 1j * ds["imag"].values
+        diag = np.einsum("...ii->...i", s).real
+        expected = np.abs(s) ** 2 / (diag[..., :, None] * diag[..., None, :])
+        np.testing.assert_allclose(ds["coherence"].values, expected, rtol=1e-10)
+        assert ds["coherence"].attrs["units"] == "1"
+        np.testing.assert_allclose(np.einsum("...ii->...i", ds["coherence"].values), 1.0)

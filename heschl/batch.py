@@ -39,10 +39,13 @@ def up_to_date(study, recording):
     if not all(p.exists() for p in paths.values()):
         return False
     try:
-        old = json.loads(paths["provenance"].read_text(encoding="utf-8")).get("key")
+        old = json.loads(paths["provenance"].read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return False
-    return old == input_key(input_hashes(recording), definitions_of(study, recording))
+    folder = paths["provenance"].parent
+    if not all((folder / name).exists() for name in old.get("arrays", [])):
+        return False
+    return old.get("key") == input_key(input_hashes(recording), definitions_of(study, recording))
 
 
 def process_and_write(study, recording, force=False):

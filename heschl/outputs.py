@@ -121,8 +121,11 @@ def write_recording(output, recording, result, report_html):
     from .arrays import ARRAY_SUFFIXES, write_netcdf
 
     paths = recording_paths(output, recording)
+    written = []
     for name, dataset in result.get("arrays", {}).items():
-        write_netcdf(paths["features"].parent / f"{recording.stem}_desc-{name}_{ARRAY_SUFFIXES[name]}.nc", dataset)
+        written.append(write_netcdf(paths["features"].parent / f"{recording.stem}_desc-{name}_{ARRAY_SUFFIXES[name]}.nc",
+                                    dataset).name)
+    result["provenance"]["arrays"] = written
     write_atomic(paths["features"], features_tsv(result["rows"]))
     write_atomic(paths["features_json"], _json(FEATURE_SIDECAR))
     write_atomic(paths["qc"], _json(_finite(result["qc"])))

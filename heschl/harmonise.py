@@ -23,7 +23,7 @@ log = logging.getLogger(__name__)
 # Old 10-20 labels renamed in the 10-10 nomenclature (ACNS Guideline 2, 2016; same positions).
 OLD_NAMES = {"T3": "T7", "T4": "T8", "T5": "P7", "T6": "P8"}
 _EOG_WORDS = ("EOG", "HEOG", "VEOG", "LEOG", "REOG")
-_READERS = {".vhdr": "BrainVision", ".edf": "EDF", ".bdf": "BDF", ".fif": "FIF", ".set": "EEGLAB",
+_READERS = {".vhdr": "BrainVision", ".edf": "EDF", ".bdf": "BDF", ".fif": "FIF", ".set": "MATLAB .set",
             ".gz": "FIF"}
 
 

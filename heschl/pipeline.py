@@ -79,7 +79,7 @@ def discover(study):
 
 
 def recording_files(path):
-    """The main file and its companions (BrainVision header, markers and data; EEGLAB .fdt)."""
+    """The main file and its companions (BrainVision header, markers and data; the .fdt data of a .set file)."""
     path = Path(path)
     files = [path]
     if path.suffix.lower() == ".vhdr":

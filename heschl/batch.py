@@ -30,10 +30,13 @@ def _limit_threads():
         pass
 
 
-def up_to_date(study, recording):
-    """True when every output exists and provenance names the same input key."""
+def up_to_date(study, recording, hashes):
+    """True when every output exists and provenance names the same input key.
+
+    ``hashes`` are the recording's current input hashes (:func:`heschl.pipeline.input_hashes`).
+    """
     from .outputs import recording_paths
-    from .pipeline import definitions_of, input_hashes, input_key
+    from .pipeline import definitions_of, input_key
 
     paths = recording_paths(study.output, recording)
     if not all(p.exists() for p in paths.values()):
@@ -45,7 +48,7 @@ def up_to_date(study, recording):
     folder = paths["provenance"].parent
     if not all((folder / name).exists() for name in old.get("arrays", [])):
         return False
-    return old.get("key") == input_key(input_hashes(recording), definitions_of(study, recording))
+    return old.get("key") == input_key(hashes, definitions_of(study, recording))
 
 
 def process_and_write(study, recording, force=False):
@@ -54,16 +57,17 @@ def process_and_write(study, recording, force=False):
     Never raises for a problem with the recording: the error becomes part of the summary.
     """
     from .outputs import write_recording
-    from .pipeline import process_recording
+    from .pipeline import input_hashes, process_recording
     from .report import render_recording
 
     summary = {"site": recording.site, "participant_id": recording.participant_id,
                "paradigm": recording.paradigm, "group": recording.group, "status": "done", "error": None}
     try:
-        if not force and up_to_date(study, recording):
+        hashes = input_hashes(recording)  # read once: for the resume check and for provenance
+        if not force and up_to_date(study, recording, hashes):
             summary["status"] = "unchanged"
             return summary
-        result = process_recording(study, recording)
+        result = process_recording(study, recording, hashes)
         design = next(a.paradigm.design for a in study.analyses if a.paradigm.name == recording.paradigm)
         write_recording(study.output, recording, result, render_recording(recording, result, design))
         summary["verdict"] = result["qc"]["verdict"]

@@ -150,8 +150,11 @@ class _Clock:
         self._t = now
 
 
-def process_recording(study, recording):
+def process_recording(study, recording, hashes=None):
     """Run every stage for one recording.
+
+    ``hashes`` (from :func:`input_hashes`) may be passed when the caller has them already,
+    so that the input files are read for hashing only once.
 
     Returns
     -------
@@ -166,7 +169,9 @@ def process_recording(study, recording):
     paradigm, site = analysis.paradigm, study.sites[recording.site]
     where = _display(recording.path)
     clock = _Clock()
-    hashes = input_hashes(recording)
+    hashes = input_hashes(recording) if hashes is None else hashes
+    definitions = definitions_of(study, recording)
+    key = input_key(hashes, definitions)
     raw = read_raw(recording.path)
     clock.lap("read")
     raw, markers, harmonised = harmonise(raw, site, paradigm, study.common_channels, where)
@@ -182,19 +187,18 @@ def process_recording(study, recording):
         rows.extend(_features(fs, source, paradigm))
     curves = _curves(analysis, source)
     clock.lap("features")
-    arrays = _arrays(analysis, source, recording, hashes, study)
+    arrays = _arrays(analysis, source, recording, key, definitions)
     clock.lap("arrays")
     counts = _counts(entries, paradigm)
     snr = _snr(source, paradigm)
     qc = _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr)
     qc["mastoid_inversion"] = _mastoid_inversion(analysis, source)
     qc["flags"].extend(_inversion_flags(qc["mastoid_inversion"], cleaning["reference"]))
-    definitions = definitions_of(study, recording)
     provenance = {
         "recording": {"site": recording.site, "participant_id": recording.participant_id,
                       "group": recording.group, "paradigm": recording.paradigm, "file": where},
         "inputs_sha256": hashes,
-        "key": input_key(hashes, definitions),
+        "key": key,
         "definitions": definitions,
         "steps": {"harmonise": harmonised, "clean": cleaning,
                   "rejection": dict(rejection, trials=counts),
@@ -267,7 +271,7 @@ def _counts(entries, paradigm):
     return counts
 
 
-def _arrays(analysis, source, recording, hashes, study):
+def _arrays(analysis, source, recording, key, definitions):
     """Model-ready arrays (xarray datasets) with provenance attributes."""
     import json
 
@@ -281,10 +285,9 @@ def _arrays(analysis, source, recording, hashes, study):
         spec = next((fs.spectrum for fs in analysis.feature_sets), {"segment": 2.0, "overlap": 0.5})
         low, high = paradigm.cleaning.pass_band
         kwargs.update(spectrum=spec, csd=dict(spec, fmin=low, fmax=high))
-    definitions = definitions_of(study, recording)
     provenance = {"heschl_version": __version__, "participant_id": recording.participant_id,
                   "site": recording.site, "group": recording.group, "paradigm": recording.paradigm,
-                  "input_key": input_key(hashes, definitions),
+                  "input_key": key,
                   "definitions_sha256": hashlib.sha256(json.dumps(definitions, sort_keys=True,
                                                                   default=str).encode()).hexdigest()}
     arrays = model_arrays(source, design=paradigm.design, provenance=provenance, **kwargs)

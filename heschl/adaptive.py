@@ -97,30 +97,60 @@ def _distance_adjacency(pos):
 
     dist = cdist(pos, pos)
     np.fill_diagonal(dist, np.inf)
-    radius = NEIGHBOUR_DISTANCE_RATIO * np.median(dist.min(axis=1))
-    return dist <= radius
+    if len(pos) < 2:
+        return np.zeros((len(pos), len(pos)), dtype=bool)
+    apart = np.where(dist > _CO_LOCATED_M, dist, np.inf)  # co-located sensors do not set the scale
+    nearest = apart.min(axis=1)
+    radius = NEIGHBOUR_DISTANCE_RATIO * np.median(nearest[np.isfinite(nearest)]) if np.isfinite(nearest).any() else 0.0
+    return dist <= max(radius, _CO_LOCATED_M)
+
+
+_CO_LOCATED_M = 1e-4  # sensors closer than 0.1 mm share a location (planar gradiometer pairs)
 
 
 def _adjacency(info):
-    """(bool csr matrix without self-loops, ch_names in info order, source)."""
+    """(bool csr matrix without self-loops, ch_names in info order, source by sensor type).
+
+    Channels of different sensor types are never neighbours. EEG adjacency comes from
+    the montage (``mne.channels.find_ch_adjacency``, a Delaunay triangulation), MEG
+    adjacency from the sensor positions by the distance rule (the file's sensor
+    geometry, whatever its system); co-located sensors (the two planar gradiometers of
+    one location) are always neighbours.
+    """
     import mne
     from scipy import sparse
 
     names = list(info["ch_names"])
     pos = _positions(info, where="channel_adjacency")
-    try:
-        with mne.utils.use_log_level("error"):
-            found, found_names = mne.channels.find_ch_adjacency(info, "eeg")
-        order = [list(found_names).index(n) for n in names]
-        dense = sparse.csr_array(found).toarray().astype(bool)[np.ix_(order, order)]
-        source = "mne find_ch_adjacency"
-    except Exception as exc:  # triangulation fails on coplanar or too few positions
-        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-        log.info("Adjacency from the montage failed (%s); using the distance rule", first)
-        dense = _distance_adjacency(pos)
-        source = f"distance < {NEIGHBOUR_DISTANCE_RATIO:g} x median nearest-neighbour distance"
+    types = [mne.channel_type(info, i) for i in range(info["nchan"])]
+    dense = np.zeros((len(names), len(names)), dtype=bool)
+    sources = {}
+    for kind in dict.fromkeys(types):
+        idx = [i for i, t in enumerate(types) if t == kind]
+        block, sources[kind] = _type_adjacency(info, idx, pos[idx], kind)
+        dense[np.ix_(idx, idx)] = block
     np.fill_diagonal(dense, False)
-    return sparse.csr_array(dense | dense.T), names, source
+    return sparse.csr_array(dense | dense.T), names, sources
+
+
+_DISTANCE_RULE = f"distance < {NEIGHBOUR_DISTANCE_RATIO:g} x median nearest-neighbour distance"
+
+
+def _type_adjacency(info, idx, pos, kind):
+    import mne
+    from scipy import sparse
+
+    if kind == "eeg":
+        try:
+            sub = mne.pick_info(info, idx)
+            with mne.utils.use_log_level("error"):
+                found, found_names = mne.channels.find_ch_adjacency(sub, "eeg")
+            order = [list(found_names).index(n) for n in sub["ch_names"]]
+            return sparse.csr_array(found).toarray().astype(bool)[np.ix_(order, order)], "mne find_ch_adjacency"
+        except Exception as exc:  # triangulation fails on coplanar or too few positions
+            first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+            log.info("Adjacency from the montage failed (%s); using the distance rule", first)
+    return _distance_adjacency(pos), _DISTANCE_RULE
 
 
 def channel_adjacency(info):
@@ -206,13 +236,16 @@ def _check_arrays(epochs_data, detection_data, info):
     return analysis, detection
 
 
-def _eeg_info(info):
+_TYPES = ("eeg", "mag", "grad")
+
+
+def _data_info(info):
     types = set(info.get_channel_types())
-    if types != {"eeg"}:
+    if not types or not types <= set(_TYPES):
         raise InputDataError(problem(
-            "adaptive_reject", f"info holds channel types {sorted(types)}, not only eeg",
-            "pass the info of the cut EEG channels, e.g. "
-            "mne.pick_info(raw.info, mne.pick_types(raw.info, eeg=True))", key="info"))
+            "adaptive_reject", f"info holds channel types {sorted(types)}, not only eeg, mag and grad",
+            "pass the info of the cut data channels, e.g. "
+            "mne.pick_info(raw.info, mne.pick_types(raw.info, eeg=True, meg=True))", key="info"))
     _positions(info)
     info = info.copy()
     info["bads"] = []  # every cut channel is judged; bad channels were repaired before cutting
@@ -235,7 +268,7 @@ def _folds(n_epochs, cv):
     return folds
 
 
-def _decisions(labels, bad_epochs, clusters, max_cluster, consensus):
+def _decisions(labels, bad_epochs, clusters, max_cluster, consensus, types):
     """Keep mask and reasons from autoreject's labels and drops plus the cluster rule.
 
     Parameters
@@ -243,12 +276,14 @@ def _decisions(labels, bad_epochs, clusters, max_cluster, consensus):
     labels : ndarray, shape (n_epochs, n_channels)
         autoreject's reject-log labels: 0 good, 1 beyond its threshold, 2 interpolated.
     bad_epochs : ndarray of bool, shape (n_epochs,)
-        Epochs autoreject drops (consensus reached).
+        Epochs autoreject drops (consensus reached in some sensor type).
     clusters : ndarray of int, shape (n_epochs,)
         Largest group of neighbouring interpolated channels (`interpolated_clusters`).
     max_cluster : int
-    consensus : float
-        The fraction of channels that drops an epoch.
+    consensus : dict
+        Sensor type -> the fraction of its channels that drops an epoch.
+    types : list of str
+        Sensor type of each channel.
 
     Returns
     -------
@@ -256,33 +291,59 @@ def _decisions(labels, bad_epochs, clusters, max_cluster, consensus):
     reasons : list of (str or None)
     by_consensus : ndarray of bool, shape (n_epochs,)
     """
-    n_channels = labels.shape[1]
-    n_bad = (labels >= 1).sum(axis=1)
-    needed = math.ceil(consensus * n_channels - 1e-9)
+    types = np.asarray(types)
     by_consensus = np.asarray(bad_epochs, dtype=bool)
     by_cluster = ~by_consensus & (clusters > max_cluster)
     reasons = [None] * len(labels)
+    several = len(consensus) > 1
     for e in np.flatnonzero(by_consensus):
-        reasons[e] = (f"adaptive: {n_bad[e]} of {n_channels} channels beyond their thresholds "
-                      f"(consensus drops at {needed} or more)")
+        parts = []
+        for kind, fraction in consensus.items():
+            cols = types == kind
+            n_channels, n_bad = int(cols.sum()), int((labels[e, cols] >= 1).sum())
+            needed = math.ceil(fraction * n_channels - 1e-9)
+            if n_bad >= needed or not several:
+                label = f" {kind.upper()}" if several else ""
+                parts.append(f"{n_bad} of {n_channels}{label} channels beyond their thresholds "
+                             f"(consensus drops at {needed} or more)")
+        reasons[e] = "adaptive: " + "; ".join(parts or ["consensus reached"])
     for e in np.flatnonzero(by_cluster):
         reasons[e] = f"adaptive: interpolated cluster of {clusters[e]} neighbouring channels > {max_cluster}"
     return ~(by_consensus | by_cluster), reasons, by_consensus
 
 
-def _interpolate(analysis, info, interp, keep):
-    """Spline-interpolate each kept epoch's flagged channels in ``analysis`` (in place)."""
+def _interpolate(analysis, info, interp, keep, dots=None):
+    """Interpolate each kept epoch's flagged channels in ``analysis`` (in place).
+
+    EEG channels: mne's spherical splines. MEG channels: the field mapping of autoreject
+    (minimum-norm over a sphere at `INTERPOLATION_ORIGIN`) with the lead-field dot
+    products it computed once while fitting (``dots``); computing them for every set of
+    bad channels, as mne's interpolate_bads does, costs about a second per set.
+    """
     import mne
 
+    types = np.array(info.get_channel_types())
+    meg = np.flatnonzero(np.isin(types, ("mag", "grad")))
+    meg_info = mne.pick_info(info, meg) if len(meg) else None
     groups = {}
     for e in np.flatnonzero(keep & interp.any(axis=1)):
         groups.setdefault(tuple(np.flatnonzero(interp[e])), []).append(e)
     for channels, epochs_idx in groups.items():
-        part = mne.EpochsArray(analysis[epochs_idx].copy(), info.copy(), verbose=False)
-        part.info["bads"] = [info["ch_names"][c] for c in channels]
-        part.interpolate_bads(reset_bads=True, mode="accurate", origin=INTERPOLATION_ORIGIN,
-                              verbose=False)
-        analysis[epochs_idx] = part.get_data(copy=True)
+        eeg_bads = [info["ch_names"][c] for c in channels if types[c] == "eeg"]
+        meg_bads = [info["ch_names"][c] for c in channels if types[c] != "eeg"]
+        if eeg_bads:
+            part = mne.EpochsArray(analysis[epochs_idx].copy(), info.copy(), verbose=False)
+            part.info["bads"] = eeg_bads
+            part.interpolate_bads(reset_bads=True, mode="accurate", origin=INTERPOLATION_ORIGIN,
+                                  verbose=False)
+            analysis[epochs_idx] = part.get_data(copy=True)
+        if meg_bads:
+            from autoreject.utils import interpolate_bads as field_interpolate
+
+            part = mne.EpochsArray(analysis[np.ix_(epochs_idx, meg)].copy(), meg_info.copy(), verbose=False)
+            part.info["bads"] = meg_bads
+            field_interpolate(part, picks=np.arange(len(meg)), dots=dots, reset_bads=True, mode="accurate")
+            analysis[np.ix_(epochs_idx, meg)] = part.get_data(copy=True)
     return len(groups)
 
 
@@ -292,7 +353,10 @@ def _fit(detection, info, folds, random_state, n_jobs):
     from autoreject import AutoReject
     from threadpoolctl import threadpool_limits  # installed with scikit-learn (autoreject's)
 
-    candidates = interpolation_candidates(info["nchan"])
+    # One set of candidates for every sensor type (autoreject takes one): the smallest
+    # type's channel count bounds it.
+    counts = [info.get_channel_types().count(t) for t in set(info.get_channel_types())]
+    candidates = interpolation_candidates(min(counts))
     # Hyper-parameters are passed explicitly: AutoReject fills in and overwrites its own
     # when given None, so what it chose is read from its fitted attributes only.
     model = AutoReject(n_interpolate=np.array(candidates), consensus=np.array(CONSENSUS_CANDIDATES),
@@ -306,13 +370,22 @@ def _fit(detection, info, folds, random_state, n_jobs):
     return model, reject_log, candidates
 
 
-def _record(model, names, candidates, folds, max_cluster, source, keep, by_consensus, interp, clusters):
+# Threshold record key and factor from SI per sensor type (uV, fT, fT/cm).
+_THRESHOLD_KEYS = {"eeg": ("thresholds_uv", 1e6), "mag": ("thresholds_ft", 1e15),
+                   "grad": ("thresholds_ft_per_cm", 1e13)}
+
+
+def _record(model, names, types, candidates, folds, max_cluster, source, keep, by_consensus, interp, clusters):
     """What was learnt and decided, as JSON-ready data for the QC page."""
     sizes, counts = np.unique(clusters[~by_consensus], return_counts=True)
+    thresholds = {}
+    for kind in dict.fromkeys(types):
+        key, factor = _THRESHOLD_KEYS[kind]
+        thresholds[key] = {n: float(model.threshes_[n]) * factor for n, t in zip(names, types) if t == kind}
     return {
-        "thresholds_uv": {n: float(model.threshes_[n]) * 1e6 for n in names},
-        "n_interpolate": int(model.n_interpolate_["eeg"]),
-        "consensus": float(model.consensus_["eeg"]),
+        **thresholds,
+        "n_interpolate": {k: int(v) for k, v in model.n_interpolate_.items()},
+        "consensus": {k: float(v) for k, v in model.consensus_.items()},
         "n_interpolate_candidates": [int(c) for c in candidates],
         "consensus_candidates": [float(c) for c in CONSENSUS_CANDIDATES],
         "cv_folds": int(folds),
@@ -372,7 +445,7 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
         ``interpolated`` (per epoch, the channels interpolated in it; empty if dropped).
     """
     analysis, detection = _check_arrays(epochs_data, detection_data, info)
-    info = _eeg_info(info)
+    info = _data_info(info)
     if isinstance(max_cluster, bool) or not isinstance(max_cluster, (int, np.integer)) or max_cluster < 1:
         raise InputDataError(problem("adaptive_reject", f"max_cluster = {max_cluster!r}",
                                      "pass a positive number of channels, e.g. 3", key="max_cluster"))
@@ -382,11 +455,13 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
     labels = np.nan_to_num(reject_log.labels, nan=0.0)
     interp = labels == 2
     adjacency, names, source = _adjacency(info)
+    types = info.get_channel_types()
     clusters = interpolated_clusters(interp, adjacency)
-    consensus = float(model.consensus_["eeg"])
-    keep, reasons, by_consensus = _decisions(labels, reject_log.bad_epochs, clusters, max_cluster, consensus)
-    _interpolate(analysis, info, interp, keep)
-    record = _record(model, names, candidates, folds, max_cluster, source, keep, by_consensus, interp,
+    consensus = {k: float(v) for k, v in model.consensus_.items()}
+    keep, reasons, by_consensus = _decisions(labels, reject_log.bad_epochs, clusters, max_cluster, consensus,
+                                             types)
+    _interpolate(analysis, info, interp, keep, getattr(model, "dots", None))
+    record = _record(model, names, types, candidates, folds, max_cluster, source, keep, by_consensus, interp,
                      clusters)
     log.info("Adaptive rejection dropped %d of %d epochs (%.0f %%): %d by consensus, %d by "
              "interpolated cluster; %d kept epochs have interpolated channels",

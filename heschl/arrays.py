@@ -52,7 +52,7 @@ RESERVED_ATTRIBUTES = ("heschl_array", "design", "description", "contrasts", "we
 
 _LABELS = {"signal": "condition or contrast (difference wave) of the paradigm",
            "signal_kind": "condition or contrast",
-           "channel": "EEG channel", "channel_to": "second EEG channel of the cross-spectrum (y)"}
+           "channel": "channel", "channel_to": "second channel of the cross-spectrum (y)"}
 _WINDOW = "hann"  # the Welch taper of Source.spectrum and cross_spectra (their default)
 
 
@@ -243,8 +243,28 @@ def _label(dim, values):
     return (dim, np.array(values, dtype=object), {"long_name": _LABELS[dim]})
 
 
-def _channel_coords(names):
-    return {"channel": _label("channel", names)}
+_SI = {"eeg": "V", "mag": "T", "grad": "T/m"}  # SI unit of each sensor type's data
+
+
+def _channel_coords(names, source=None, picks=None):
+    coords = {"channel": _label("channel", names)}
+    if source is not None:
+        types = [getattr(source, "ch_types", ["eeg"] * len(source.ch_names))[i] for i in picks]
+        coords["channel_type"] = ("channel", np.array(types, dtype=object),
+                                  {"long_name": "sensor type: eeg (V), mag (T) or grad (T/m)"})
+    return coords
+
+
+def _unit(source, picks, power=""):
+    """SI unit of the picked channels' data ("V", "T", "T/m"), squared or per Hz by ``power``."""
+    types = {getattr(source, "ch_types", ["eeg"] * len(source.ch_names))[i] for i in picks}
+    if len(types) != 1:
+        return {"": "V, T or T/m by channel_type", "^2": "V^2, T^2 or (T/m)^2 by channel_type",
+                "^2/Hz": "V^2/Hz, T^2/Hz or (T/m)^2/Hz by channel_type"}[power]
+    base = _SI[types.pop()]
+    if not power:
+        return base
+    return (f"({base})" if "/" in base else base) + power
 
 
 def _n_trials(source, signals):
@@ -264,12 +284,12 @@ def _waveforms(source, picks, names):
     contrasts = {name: f"{c.plus} - {c.minus}" for name, c in paradigm.contrasts.items()}
     return xr.Dataset(
         {"average": (("signal", "channel", "time"), average,
-                     {"units": "V", "long_name": "condition average or difference wave (plus - minus)"}),
+                     {"units": _unit(source, picks), "long_name": "condition average or difference wave (plus - minus)"}),
          "n_trials": _n_trials(source, signals)},
         coords={"signal": _label("signal", signals), "signal_kind": ("signal", np.array(kinds, dtype=object),
                                                                      {"long_name": _LABELS["signal_kind"]}),
-                **_channel_coords(names), "time": _time(source)},
-        attrs={"description": "Condition averages and difference waves of the kept trials, in V.",
+                **_channel_coords(names, source, picks), "time": _time(source)},
+        attrs={"description": f"Condition averages and difference waves of the kept trials, in {_unit(source, picks)}.",
                "contrasts": json.dumps(contrasts)})
 
 
@@ -289,9 +309,9 @@ def _itpc(source, picks, names, frequency):
     return xr.Dataset(
         {"itpc": (dims, np.stack(phase), {"units": "1", "long_name": "inter-trial phase coherence"}),
          "evoked_power": (dims, np.stack(power),
-                          {"units": "V^2", "long_name": "power of the trial-averaged coefficients"}),
+                          {"units": _unit(source, picks, "^2"), "long_name": "power of the trial-averaged coefficients"}),
          "n_trials": _n_trials(source, conditions)},
-        coords={"signal": _label("signal", conditions), **_channel_coords(names), "time": _time(source),
+        coords={"signal": _label("signal", conditions), **_channel_coords(names, source, picks), "time": _time(source),
                 "frequency": ((), frequency, {"units": "Hz", "long_name": "stimulation frequency"})},
         attrs={"description": "Phase locking and evoked power at the stimulation frequency "
                               "from complex Morlet wavelets.",
@@ -308,11 +328,11 @@ def _spectra(where, source, picks, names, spectrum):
             psd[k] = source.spectrum(c, spec)[1][picks]
     return xr.Dataset(
         {"psd": (("signal", "channel", "frequency"), psd,
-                 {"units": "V^2/Hz", "long_name": "power spectral density (Welch, mean over kept segments)"}),
+                 {"units": _unit(source, picks, "^2/Hz"), "long_name": "power spectral density (Welch, mean over kept segments)"}),
          "n_trials": _n_trials(source, conditions)},
-        coords={"signal": _label("signal", conditions), **_channel_coords(names),
+        coords={"signal": _label("signal", conditions), **_channel_coords(names, source, picks),
                 "frequency": ("frequency", freqs, {"units": "Hz"})},
-        attrs={"description": "One-sided Welch power spectral density per condition, in V^2/Hz.",
+        attrs={"description": f"One-sided Welch power spectral density per condition, in {_unit(source, picks, '^2/Hz')}.",
                **_welch_attributes(spec)})
 
 
@@ -328,11 +348,11 @@ def _csd(where, source, picks, names, settings):
     dims = ("signal", "frequency", "channel", "channel_to")
     part = "part of the cross-spectral density S[f, channel, channel_to]"
     return xr.Dataset(
-        {"real": (dims, matrices.real.copy(), {"units": "V^2/Hz", "long_name": f"real {part}"}),
-         "imag": (dims, matrices.imag.copy(), {"units": "V^2/Hz", "long_name": f"imaginary {part}"}),
+        {"real": (dims, matrices.real.copy(), {"units": _unit(source, picks, "^2/Hz"), "long_name": f"real {part}"}),
+         "imag": (dims, matrices.imag.copy(), {"units": _unit(source, picks, "^2/Hz"), "long_name": f"imaginary {part}"}),
          "n_trials": _n_trials(source, conditions)},
         coords={"signal": _label("signal", conditions), "frequency": ("frequency", freqs, {"units": "Hz"}),
-                **_channel_coords(names), "channel_to": _label("channel_to", names)},
+                **_channel_coords(names, source, picks), "channel_to": _label("channel_to", names)},
         attrs={"description": "Cross-spectral density matrices (Welch, one-sided, V^2/Hz) stored as "
                               "real and imaginary parts, since NetCDF has no complex type: "
                               "S = real + 1j * imag. S[f, i, j] = scipy.signal.csd(x=channel i, "

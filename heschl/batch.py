@@ -183,7 +183,8 @@ def _check_one(study, recording):
     if site.recording_reference not in ("average", "linked-mastoids", "unknown"):
         names.append(site.recording_reference)
     row["channels"] = len(raw.ch_names)
-    row["missing"] = [c for c in study.common_channels if c not in names]
+    # The common channels are the study's EEG cap; MEG sites keep their own sensors.
+    row["missing"] = [c for c in study.common_channels if c not in names] if site.datatype == "eeg" else []
     row["duration_s"] = round(raw.n_times / raw.info["sfreq"], 2)
     row["sampling_rate_hz"] = raw.info["sfreq"]
     try:

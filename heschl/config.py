@@ -44,24 +44,29 @@ BAND_CLOSURES = ("left", "right", "both", "neither")  # which band edges belong 
 
 # Parameters of every measure kind: (required keys, optional keys, default unit, allowed units).
 # heschl.features.MEASURES holds the functions; a test keeps the two in step.
+# Amplitude and power units: EEG regions read uV or V, magnetometer regions fT or T,
+# gradiometer regions fT/cm or T/m (heschl.sensors checks each region against its unit).
+_AMPLITUDE_UNITS = ("uV", "V", "fT", "T", "fT/cm", "T/m")
+_POWER_UNITS = ("uV^2", "V^2", "fT^2", "T^2", "(fT/cm)^2", "(T/m)^2")
 MEASURE_KINDS = {
-    "mean-amplitude": ({"signal", "region", "window"}, set(), "uV", ("uV", "V")),
-    "peak-amplitude": ({"signal", "region", "window", "polarity"}, set(), "uV", ("uV", "V")),
+    "mean-amplitude": ({"signal", "region", "window"}, set(), "uV", _AMPLITUDE_UNITS),
+    "peak-amplitude": ({"signal", "region", "window", "polarity"}, set(), "uV", _AMPLITUDE_UNITS),
     "peak-latency": ({"signal", "region", "window", "polarity"}, set(), "ms", ("ms", "s")),
     "itpc": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
-    "evoked-power": ({"signal", "region", "frequency", "window"}, set(), "uV^2", ("uV^2", "V^2")),
-    "band-power": ({"signal", "region", "band"}, set(), "uV^2", ("uV^2", "V^2")),
+    "evoked-power": ({"signal", "region", "frequency", "window"}, set(), "uV^2", _POWER_UNITS),
+    "band-power": ({"signal", "region", "band"}, set(), "uV^2", _POWER_UNITS),
     "relative-band-power": ({"signal", "region", "band", "relative_to"}, set(), "1", ("1",)),
     "band-ratio": ({"numerator", "denominator", "region", "band"}, set(), "1", ("1",)),
     "fractional-area-latency": ({"signal", "region", "window", "polarity"}, {"fraction"}, "ms", ("ms", "s")),
-    "induced-power": ({"signal", "region", "frequency", "window"}, set(), "uV^2", ("uV^2", "V^2")),
+    "induced-power": ({"signal", "region", "frequency", "window"}, set(), "uV^2", _POWER_UNITS),
     "ppc": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
     "rayleigh-p": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
     "snr": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
     "snr-p": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
     "peak-frequency": ({"signal", "region", "band"}, set(), "Hz", ("Hz",)),
     "aperiodic-exponent": ({"signal", "region"}, set(), "1", ("1",)),
-    "aperiodic-offset": ({"signal", "region"}, set(), "log10(uV^2/Hz)", ("log10(uV^2/Hz)",)),
+    "aperiodic-offset": ({"signal", "region"}, set(), "log10(uV^2/Hz)",
+                         ("log10(uV^2/Hz)", "log10(fT^2/Hz)", "log10((fT/cm)^2/Hz)")),
 }
 _EPOCH_KINDS = {"mean-amplitude", "peak-amplitude", "peak-latency", "itpc", "evoked-power",
                 "fractional-area-latency", "induced-power", "ppc", "rayleigh-p", "snr", "snr-p"}
@@ -116,11 +121,13 @@ class SegmentSpec:
 @dataclass(frozen=True)
 class Rejection:
     method: str
-    peak_to_peak: object          # V or None
+    peak_to_peak: object          # V or None (EEG)
     min_trials: dict
     detection_high_pass: float = 1.0   # Hz, adaptive: decisions learned on a copy high-passed here
     max_cluster: int = 3               # adaptive: largest group of neighbouring interpolated channels
     equalise: bool = False             # equalise kept trial counts across conditions
+    # fixed: limits of the MEG sensor types, SI (T for magnetometers, T/m for gradiometers)
+    peak_to_peak_meg: dict = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -180,6 +187,7 @@ class Site:
     eog_channels: tuple
     subject_pattern: str
     bad_channels: dict            # participant_id -> tuple of channel names
+    datatype: str = "eeg"         # BIDS datatype of the site's recordings: "eeg" or "meg"
 
 
 @dataclass(frozen=True)
@@ -397,6 +405,7 @@ QUALITY_KEYS = {
     "min_snr": (1.1, 0.0, None),           # plus-minus SNR of each condition average (epoch designs)
     "max_line_ratio": (3.0, 1.0, None),    # residual line-noise power over neighbouring bins
     "max_eog_correlation": (0.2, 0.0, 1.0),  # residual |correlation| of EEG with EOG
+    "max_blink_trials": (0.05, 0.0, 1.0),    # fraction of kept trials holding a blink (vertical EOG)
 }
 
 
@@ -512,16 +521,29 @@ def _timing(top, design, conditions):
     return EpochSpec(window, baseline, tuple(skip)), None
 
 
+# Fixed peak-to-peak limits per sensor type: key -> (type, unit, factor from SI, default).
+# The MEG defaults are the limits of mne's own tutorials (4000 fT, 4000 fT/cm; common practice).
+PEAK_TO_PEAK_KEYS = {
+    "peak_to_peak_uv": ("eeg", "uV", 1e6, None),
+    "peak_to_peak_ft": ("mag", "fT", 1e15, 4000.0),
+    "peak_to_peak_ft_per_cm": ("grad", "fT/cm", 1e13, 4000.0),
+}
+
+
 def _rejection(top, conditions):
-    section = top.sub("rejection", {"method", "peak_to_peak_uv", "min_trials", "detection_high_pass",
-                                    "max_cluster", "equalise"})
+    section = top.sub("rejection", {"method", "min_trials", "detection_high_pass", "max_cluster", "equalise"}
+                      | set(PEAK_TO_PEAK_KEYS))
     method = section.string("method", choices=REJECTION_METHODS)
-    ptp = None
+    ptp, meg = None, {}
     if method == "fixed":
         ptp = section.number("peak_to_peak_uv", unit="uV", low=0.0, strict_low=True) * 1e-6
-    elif "peak_to_peak_uv" in section.data:
-        section.fail("peak_to_peak_uv", f'is only used with method = "fixed", not "{method}"',
-                     "remove it or set method = \"fixed\"")
+        for key, (kind, unit, factor, default) in PEAK_TO_PEAK_KEYS.items():
+            if kind != "eeg":
+                meg[kind] = section.number(key, default=default, unit=unit, low=0.0, strict_low=True) / factor
+    for key in PEAK_TO_PEAK_KEYS:
+        if key in section.data and method != "fixed":
+            section.fail(key, f'is only used with method = "fixed", not "{method}"',
+                         "remove it or set method = \"fixed\"")
     for key in ("detection_high_pass", "max_cluster"):
         if key in section.data and method != "adaptive":
             section.fail(key, f'is only used with method = "adaptive", not "{method}"',
@@ -533,7 +555,7 @@ def _rejection(top, conditions):
         section.fail("equalise", f"expected true or false, got {_show(equalise)}", "write equalise = true or false")
     counts = section.sub("min_trials", set(conditions), default={})
     min_trials = {c: counts.integer(c, low=1) for c in counts.data}
-    return Rejection(method, ptp, min_trials, high_pass, max_cluster, equalise)
+    return Rejection(method, ptp, min_trials, high_pass, max_cluster, equalise, meg)
 
 
 def _stimulation(top, cleaning):
@@ -700,7 +722,8 @@ def _measure_frequency(section, paradigm):
 
 # --------------------------------------------------------------------------- study
 _STUDY_KEYS = {"name", "output", "participants", "common_channels", "analyses", "sites"}
-_SITE_KEYS = {"recording_reference", "line_frequency", "trigger_delay_ms", "files", "markers",
+DATATYPES = ("eeg", "meg")  # BIDS datatypes heschl writes
+_SITE_KEYS = {"datatype", "recording_reference", "line_frequency", "trigger_delay_ms", "files", "markers",
               "channel_aliases", "eog_channels", "subject_pattern", "bad_channels"}
 DEFAULT_SUBJECT_PATTERN = r"sub-([A-Za-z0-9]+)"
 
@@ -758,6 +781,7 @@ def _sites(top, paradigms):
 
 
 def _site(section, name, paradigms):
+    datatype = section.string("datatype", default="eeg", choices=DATATYPES)
     ref = section.string("recording_reference", default="unknown")
     line = section.number("line_frequency", unit="Hz", low=0.0, strict_low=True)
     if line not in (50.0, 60.0):
@@ -797,4 +821,4 @@ def _site(section, name, paradigms):
     bad = {k: forced.strings(k) for k in forced.data}
     return Site(name=name, recording_reference=ref, line_frequency=line, trigger_delay=delay,
                 files=files, markers=markers, channel_aliases=aliases, eog_channels=eog,
-                subject_pattern=pattern, bad_channels=bad)
+                subject_pattern=pattern, bad_channels=bad, datatype=datatype)

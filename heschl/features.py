@@ -21,9 +21,11 @@ __all__ = ["MEASURES", "UNIT_SCALE", "Source", "compute_features"]
 log = logging.getLogger(__name__)
 
 # Factor from the SI value to the reported unit.
-UNIT_SCALE = {"uV": 1e6, "V": 1.0, "ms": 1e3, "s": 1.0, "1": 1.0, "uV^2": 1e12, "V^2": 1.0, "Hz": 1.0}
+UNIT_SCALE = {"uV": 1e6, "V": 1.0, "ms": 1e3, "s": 1.0, "1": 1.0, "uV^2": 1e12, "V^2": 1.0, "Hz": 1.0,
+              "fT": 1e15, "T": 1.0, "fT^2": 1e30, "T^2": 1.0,                       # magnetometers (T)
+              "fT/cm": 1e13, "T/m": 1.0, "(fT/cm)^2": 1e26, "(T/m)^2": 1.0}         # gradiometers (T/m)
 # Quantities on a log scale are shifted, not scaled: log10(uV^2/Hz) = log10(V^2/Hz) + 12.
-UNIT_SHIFT = {"log10(uV^2/Hz)": 12.0}
+UNIT_SHIFT = {"log10(uV^2/Hz)": 12.0, "log10(fT^2/Hz)": 30.0, "log10((fT/cm)^2/Hz)": 26.0}
 N_CYCLES = 7.0  # Morlet cycles for phase measures; temporal SD 28 ms at 40 Hz (REFERENCES F24)
 
 
@@ -37,6 +39,9 @@ class Source:
     ch_names : list of str
     sfreq : float, Hz
     paradigm : heschl.config.Paradigm
+    ch_types : list of str or None
+        Sensor type of each channel ("eeg", "mag", "grad"); None means all EEG. Data are in
+        the type's SI unit (V, T, T/m).
 
     Notes
     -----
@@ -46,8 +51,9 @@ class Source:
     new transforms.
     """
 
-    def __init__(self, data, times, ch_names, sfreq, paradigm, _shared=None, _index=None):
+    def __init__(self, data, times, ch_names, sfreq, paradigm, _shared=None, _index=None, ch_types=None):
         self.times, self.ch_names = times, list(ch_names)
+        self.ch_types = list(ch_types) if ch_types is not None else ["eeg"] * len(self.ch_names)
         self.sfreq, self.paradigm = sfreq, paradigm
         self._cache = {}
         self._shared = {"data": data} if _shared is None else _shared
@@ -57,7 +63,8 @@ class Source:
     def subset(self, index):
         """A Source over trials ``index[condition]`` (positions among all kept trials; repeats allowed)."""
         picks = {c: np.asarray(i, dtype=int) for c, i in index.items()}
-        return Source(None, self.times, self.ch_names, self.sfreq, self.paradigm, self._shared, picks)
+        return Source(None, self.times, self.ch_names, self.sfreq, self.paradigm, self._shared, picks,
+                      self.ch_types)
 
     def count(self, condition):
         """Number of trials of a condition in this Source."""
@@ -373,6 +380,7 @@ def compute_features(feature_set, source, min_trials, seed=0):
         Seed of the resampling (bootstrap, random splits).
     """
     measures = list(feature_set.measures)
+    check_units(feature_set, source)
     values = _evaluate(measures, source, feature_set)
     usable = [all(source.count(c) >= 2 for s in _signals_of(m) for c in source.conditions_of(s))
               for m in measures]
@@ -400,6 +408,37 @@ def compute_features(feature_set, source, min_trials, seed=0):
                      **extra, "low_reliability": low_reliability, "feature_set": feature_set.name,
                      "flags": "; ".join(flags)})
     return rows
+
+
+def region_type(feature_set, region, source):
+    """The one sensor type of a region's channels in this recording (regions may not mix types)."""
+    from .errors import DefinitionError, problem
+
+    kinds = {source.ch_types[source.ch_names.index(c)] for c in feature_set.regions[region] if c in source.ch_names}
+    if len(kinds) > 1:
+        raise DefinitionError(problem(feature_set.source, f"region {region} mixes sensor types "
+                                      f"({', '.join(sorted(kinds))}); amplitudes in V and T cannot be averaged",
+                                      "split it into one region per sensor type", key=f"regions.{region}"))
+    return next(iter(kinds), None)
+
+
+def check_units(feature_set, source):
+    """Every measure's unit must be one of its region's sensor type (uV for EEG, fT for magnetometers, ...)."""
+    from .errors import DefinitionError, problem
+    from .sensors import DISPLAY, unit_type
+
+    for m in feature_set.measures:
+        kind = region_type(feature_set, m.params["region"], source)
+        wanted = unit_type(m.unit)
+        if kind is not None and wanted is not None and wanted != kind:
+            base = DISPLAY[kind][0]
+            squared = f"({base})^2" if "/" in base else f"{base}^2"
+            suggestion = (f"log10({squared}/Hz)" if m.unit.startswith("log10(")
+                          else squared if "^2" in m.unit else base)
+            raise DefinitionError(problem(
+                feature_set.source, f'measure {m.name} reads region {m.params["region"]}, whose channels are '
+                f'{kind.upper()}, but its unit "{m.unit}" is for {wanted.upper()}',
+                f'set unit = "{suggestion}" for this measure', key="measures.unit"))
 
 
 def _trial_flags(source, signals, min_trials):

@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import InputDataError, problem
+from .sensors import data_picks, types_of
 
 __all__ = ["OLD_NAMES", "Markers", "read_raw", "standard_montage", "standard_name_map",
            "canonical_channel_names", "extract_markers", "harmonise"]
@@ -183,8 +184,12 @@ def harmonise(raw, site, paradigm, common_channels, where):
     record["renamed"] = renamed
     record["eog_channels"] = _set_types(raw, site)
     record["restored_reference"] = _restore_reference(raw, site)
-    record["missing_channels"] = _pick_common(raw, common_channels, where)
-    _set_montage(raw, where)
+    _check_datatype(raw, site, where)
+    # The study's common channels are an EEG cap; an MEG site keeps its sensors (and any
+    # EEG it records beside them) as they are.
+    record["missing_channels"] = _pick_common(raw, common_channels if site.datatype == "eeg" else (), where)
+    if len(_eeg_picks(raw)):
+        _set_montage(raw, where)
     target = paradigm.cleaning.sampling_rate
     if abs(raw.info["sfreq"] - target) > 1e-9:
         if raw.info["sfreq"] < target:
@@ -192,8 +197,28 @@ def harmonise(raw, site, paradigm, common_channels, where):
                                          f"{target:g} Hz", "lower cleaning.sampling_rate in the paradigm"))
         raw.resample(target, npad="auto", verbose="error")
     record["sampling_rate"] = float(raw.info["sfreq"])
-    record["channels"] = [raw.ch_names[i] for i in _eeg_picks(raw)]
+    picks = data_picks(raw.info)
+    record["channels"] = [raw.ch_names[i] for i in picks]
+    record["channel_types"] = dict(zip(record["channels"], types_of(raw.info, picks)))
+    record["datatype"] = site.datatype
     return raw, markers, record
+
+
+def _check_datatype(raw, site, where):
+    """The site's datatype must match what the file holds (an MEG file at an EEG site is a mix-up)."""
+    import mne
+
+    meg = len(mne.pick_types(raw.info, meg=True, eeg=False))
+    eeg = len(_eeg_picks(raw))
+    if site.datatype == "meg" and not meg:
+        raise InputDataError(problem(where, f'holds no MEG channels but site "{site.name}" has datatype = "meg"',
+                                     f'set sites.{site.name}.datatype = "eeg" in the study file'))
+    if site.datatype == "eeg" and meg:
+        raise InputDataError(problem(where, f"holds {meg} MEG channels but site \"{site.name}\" has datatype = "
+                                     '"eeg"', f'set sites.{site.name}.datatype = "meg" in the study file'))
+    if not meg and not eeg:
+        raise InputDataError(problem(where, "holds no EEG or MEG channel",
+                                     "check the file; heschl reads EEG and MEG recordings"))
 
 
 def _check_unique(names, mapping, where):

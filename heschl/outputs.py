@@ -92,8 +92,8 @@ def _finite(obj):
 
 
 def recording_paths(output, recording):
-    """Paths of one recording's outputs."""
-    folder = Path(output) / recording.participant_id / "eeg"
+    """Paths of one recording's outputs (in the BIDS datatype folder: eeg/ or meg/)."""
+    folder = Path(output) / recording.participant_id / getattr(recording, "datatype", "eeg")
     stem = recording.stem
     return {
         "features": folder / f"{stem}_features.tsv",

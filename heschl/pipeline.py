@@ -33,6 +33,7 @@ class Recording:
     participant_id: str          # "sub-<label>"
     group: str
     path: Path
+    datatype: str = "eeg"        # BIDS datatype folder: "eeg" or "meg" (from the site)
 
     @property
     def label(self):
@@ -74,7 +75,7 @@ def discover(study):
                     raise InputDataError(problem(path, f'the subject pattern "{site.subject_pattern}" finds no id',
                                                  f"rename the file or set sites.{site.name}.subject_pattern"))
                 pid = f"sub-{match.group(1)}"
-                found.append(Recording(site.name, pname, pid, groups.get(pid, "n/a"), path))
+                found.append(Recording(site.name, pname, pid, groups.get(pid, "n/a"), path, site.datatype))
     return found
 
 
@@ -179,9 +180,11 @@ def process_recording(study, recording, hashes=None):
     cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
                      restored=harmonised["restored_reference"], line_frequency=site.line_frequency)
     clock.lap("clean")
+    analysis, skipped_sets = applicable(analysis, harmonised["channels"], where)
     trials_data, times, entries, ch_names, rejection = _trials(raw, markers, paradigm)
     clock.lap("segment and reject")
-    source = _source(trials_data, times, ch_names, raw.info["sfreq"], paradigm)
+    source = _source(trials_data, times, ch_names, raw.info["sfreq"], paradigm,
+                     [harmonised["channel_types"][c] for c in ch_names])
     rows = []
     for fs in analysis.feature_sets:
         rows.extend(_features(fs, source, paradigm))
@@ -194,9 +197,14 @@ def process_recording(study, recording, hashes=None):
     qc = _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr)
     qc["mastoid_inversion"] = _mastoid_inversion(analysis, source)
     qc["flags"].extend(_inversion_flags(qc["mastoid_inversion"], cleaning["reference"]))
+    qc["ocular"] = _ocular_qc(cleaning, rejection, harmonised)
+    qc["flags"].extend(_ocular_flags(qc["ocular"], paradigm.quality))
+    qc["verdict"] = verdict(qc["flags"])
+    qc["feature_sets"] = {"used": [fs.name for fs in analysis.feature_sets], "not_applicable": skipped_sets}
     provenance = {
         "recording": {"site": recording.site, "participant_id": recording.participant_id,
-                      "group": recording.group, "paradigm": recording.paradigm, "file": where},
+                      "group": recording.group, "paradigm": recording.paradigm, "file": where,
+                      "datatype": recording.datatype},
         "inputs_sha256": hashes,
         "key": key,
         "definitions": definitions,
@@ -207,6 +215,35 @@ def process_recording(study, recording, hashes=None):
         "timings_s": clock.times,
     }
     return {"rows": rows, "qc": qc, "provenance": provenance, "curves": curves, "arrays": arrays}
+
+
+def applicable(analysis, channels, where):
+    """The analysis restricted to the feature sets whose region channels this recording has.
+
+    A feature set whose region channels are all absent is for other recordings (an EEG
+    set on an MEG recording): it is left out, with the reason. One with some but not all
+    of them present is an error: a region would silently shrink.
+    """
+    import dataclasses
+
+    present, used, skipped = set(channels), [], {}
+    for fs in analysis.feature_sets:
+        wanted = {c for names in fs.regions.values() for c in names}
+        missing = sorted(wanted - present)
+        if not missing:
+            used.append(fs)
+        elif len(missing) == len(wanted):
+            skipped[fs.name] = (f"none of its {len(wanted)} region channels ({', '.join(sorted(wanted)[:4])}"
+                                f"{', ...' if len(wanted) > 4 else ''}) is in this recording")
+        else:
+            raise InputDataError(problem(where, f'lacks channels {", ".join(missing[:6])} of the regions of feature '
+                                         f'set "{fs.name}"', "add channel_aliases for them in the study file or "
+                                         "remove them from the feature set's regions"))
+    if not used:
+        raise InputDataError(problem(where, f'no feature set of paradigm "{analysis.paradigm.name}" reads its '
+                                     f"channels ({'; '.join(f'{k}: {v}' for k, v in skipped.items())})",
+                                     "add a feature set whose regions name this recording's channels"))
+    return dataclasses.replace(analysis, feature_sets=tuple(used)), skipped
 
 
 def _display(path):
@@ -223,8 +260,11 @@ def _trials(raw, markers, paradigm):
 
     import mne
 
-    picks = mne.pick_types(raw.info, eeg=True, meg=False)
+    from .sensors import data_picks, types_of
+
+    picks = data_picks(raw.info)
     ch_names = [raw.ch_names[i] for i in picks]
+    types = types_of(raw.info, picks)
     if paradigm.epochs is not None:
         plan = epoch_plan(markers, paradigm)
         window, baseline = paradigm.epochs.window, paradigm.epochs.baseline
@@ -232,22 +272,77 @@ def _trials(raw, markers, paradigm):
         duration = raw.n_times / raw.info["sfreq"]
         plan = segment_plan(markers, paradigm, duration)
         window, baseline = (0.0, paradigm.segments.length - 1.0 / raw.info["sfreq"]), None
-    x, times, entries = cut(raw, plan, window)
+    x, times, entries = cut(raw, plan, window, picks)
     detection, info = None, None
     if paradigm.rejection.method == "adaptive":
         # Learn rejection on a copy high-passed for detection: slow ERP components kept by
         # a 0.1 Hz analysis high-pass would otherwise inflate the thresholds' rejections.
         copy = raw.copy().filter(paradigm.rejection.detection_high_pass, None, picks=picks, verbose="error")
-        detection, _, _ = cut(copy, plan, window)
+        detection, _, _ = cut(copy, plan, window, picks)
         info = mne.pick_info(raw.info, picks)
-    data, entries, record = reject(x, times, entries, ch_names, paradigm, baseline, detection, info)
+    data, entries, record = reject(x, times, entries, ch_names, paradigm, baseline, detection, info, types)
+    record["kept_blinks"] = kept_blinks(raw, entries, window)
     return data, times, entries, ch_names, record
 
 
-def _source(data, times, ch_names, sfreq, paradigm):
+#: Blink detection on the vertical EOG: peaks of the 1-10 Hz band-passed EOG above this
+#: (mne's find_eog_events). Blinks reach 100-400 uV at a vertical EOG (common practice,
+#: from memory); eye-movement and brain signal stay well below 75 uV there.
+BLINK_THRESHOLD_V = 75e-6
+_BLINK_MARGIN_S = 0.1  # a blink peaking this close outside a trial still reaches into it
+
+
+def vertical_eog(raw):
+    """The vertical EOG channel: one named VEOG, else the only EOG channel, else None."""
+    import mne
+
+    names = [raw.ch_names[i] for i in mne.pick_types(raw.info, eog=True, exclude=[])]
+    vertical = [n for n in names if "VEOG" in n.upper() or n.upper() in ("EOG_V", "VEO")]
+    if vertical:
+        return vertical[0]
+    return names[0] if len(names) == 1 else None
+
+
+def kept_blinks(raw, entries, window):
+    """How many kept trials contain a blink found on the vertical EOG.
+
+    What is left of blinks after cleaning and rejection, measured where it can be: on a
+    vertical EOG channel (None without one).
+
+    Parameters
+    ----------
+    raw : mne.io.BaseRaw
+        The cleaned recording, with its EOG channels.
+    entries : list of dict
+        The trial log (``kept``, ``onset_s``).
+    window : (float, float), s
+        Trial window around each onset.
+
+    Returns
+    -------
+    dict or None
+        ``channel``, ``threshold_uv``, ``blinks`` (found in the recording), ``kept_trials``,
+        ``kept_with_blink`` and ``fraction``.
+    """
+    import mne
+
+    channel = vertical_eog(raw)
+    if channel is None:
+        return None
+    events = mne.preprocessing.find_eog_events(raw, ch_name=channel, thresh=BLINK_THRESHOLD_V, verbose="error")
+    peaks = (events[:, 0] - raw.first_samp) / raw.info["sfreq"] if len(events) else np.empty(0)
+    kept = [e for e in entries if e["kept"]]
+    hit = sum(bool(np.any((peaks >= e["onset_s"] + window[0] - _BLINK_MARGIN_S)
+                          & (peaks <= e["onset_s"] + window[1] + _BLINK_MARGIN_S))) for e in kept)
+    return {"channel": channel, "threshold_uv": BLINK_THRESHOLD_V * 1e6, "blinks": int(len(peaks)),
+            "kept_trials": len(kept), "kept_with_blink": int(hit),
+            "fraction": round(hit / len(kept), 4) if kept else None}
+
+
+def _source(data, times, ch_names, sfreq, paradigm, types=None):
     from .features import Source
 
-    return Source(data, times, ch_names, sfreq, paradigm)
+    return Source(data, times, ch_names, sfreq, paradigm, ch_types=types)
 
 
 def _features(feature_set, source, paradigm):
@@ -349,16 +444,23 @@ def _inversion_flags(inversion, reference):
 
 
 def _snr(source, paradigm):
-    """Plus-minus SNR of each condition average over all channels, after the marker."""
+    """Plus-minus SNR of each condition average over all channels, after the marker.
+
+    Pooled within one sensor type (V and T cannot be summed); with several types the
+    key is "<condition> (<TYPE>)".
+    """
     from .numeric.erp import plus_minus_snr
+    from .sensors import by_type
 
     if paradigm.epochs is None:
         return {}
     window = (0.0, float(source.times[-1]))
+    groups = by_type(source.ch_types)
     out = {}
     for c, trials in source.data.items():
-        value = float(plus_minus_snr(trials, source.times, window, pooled=True))
-        out[c] = value if np.isfinite(value) else None
+        for kind, idx in groups.items():
+            value = float(plus_minus_snr(trials[:, idx], source.times, window, pooled=True))
+            out[c if len(groups) == 1 else f"{c} ({kind.upper()})"] = value if np.isfinite(value) else None
     return out
 
 
@@ -374,11 +476,15 @@ def _curves(analysis, source):
         return curves
     picks = [source.ch_names.index(c) for c in regions[region] if c in source.ch_names]
     curves["region"] = region
+    from .sensors import DISPLAY
+
+    unit, factor = DISPLAY[source.ch_types[picks[0]]] if picks else DISPLAY["eeg"]
+    curves["unit"] = unit
     windows = {m.params["window"] for fs in analysis.feature_sets for m in fs.measures if m.params.get("window")}
     curves["windows"] = sorted(windows)
     if paradigm.design == "event-related":
-        curves["waves_uv"] = {s: (source.average(s)[picks].mean(axis=0) * 1e6).tolist()
-                              for s in paradigm.signals if source.n_trials(s) > 0}
+        curves["waves"] = {s: (source.average(s)[picks].mean(axis=0) * factor).tolist()
+                           for s in paradigm.signals if source.n_trials(s) > 0}
     elif paradigm.design == "steady-state":
         from .numeric.phase import itpc
 
@@ -388,16 +494,48 @@ def _curves(analysis, source):
                           for c in paradigm.conditions if source.n_trials(c) > 1}
     else:
         spec = next((fs.spectrum for fs in analysis.feature_sets), {"segment": 2.0, "overlap": 0.5})
-        curves["psd_uv2_per_hz"] = {}
+        curves["psd"] = {}
         for c in paradigm.conditions:
             if source.n_trials(c) > 0:
                 freqs, psd = source.spectrum(c, spec)
                 curves["freqs"] = freqs.tolist()
-                curves["psd_uv2_per_hz"][c] = (psd[picks].mean(axis=0) * 1e12).tolist()
+                curves["psd"][c] = (psd[picks].mean(axis=0) * factor ** 2).tolist()
     return curves
 
 
 FLAG_LEVELS = ("note", "caution", "unusable")
+
+
+def verdict(flags):
+    """The recording's verdict: its worst flag level, or "clear" without flags."""
+    worst = max((FLAG_LEVELS.index(f["level"]) for f in flags), default=-1)
+    return "clear" if worst < 0 else FLAG_LEVELS[worst]
+
+
+def _ocular_qc(cleaning, rejection, harmonised):
+    """What was done about ocular artefacts and what is left of them in the kept trials."""
+    ocular = cleaning.get("ocular") or {}
+    return {"policy": ocular.get("policy"), "method": ocular.get("method"),
+            "eog_channels": harmonised["eog_channels"],
+            "corrected_residual": (ocular.get("residual_correlation") or {}).get("after"),
+            "kept_blinks": rejection.get("kept_blinks")}
+
+
+def _ocular_flags(ocular, limits):
+    """A recording without EOG gets a note that blinks were only left to rejection; one
+    with a vertical EOG is flagged when too many kept trials still hold a blink."""
+    if not ocular["eog_channels"]:
+        if ocular["method"] in ("none", None):
+            return [_flag("note", "no-eog", "no EOG channel: ocular artefacts were not corrected and cannot be "
+                          f"measured against an EOG; they were left to epoch rejection (cleaning.ocular = "
+                          f"\"{ocular['policy']}\"). Check frontal channels of the averages for blink residue")]
+        return []
+    blinks = ocular["kept_blinks"]
+    if blinks and blinks["fraction"] is not None and blinks["fraction"] > limits["max_blink_trials"]:
+        return [_flag("caution", "blinks-in-kept-trials",
+                      f"{blinks['kept_with_blink']} of {blinks['kept_trials']} kept trials hold a blink found on "
+                      f"{blinks['channel']} (more than {limits['max_blink_trials']:.0%})")]
+    return []
 
 
 def _flag(level, code, message):
@@ -409,9 +547,17 @@ def _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr):
     flags = _trial_flags(counts, limits)
     bads = cleaning["bad_channels"]
     n_channels = len(harmonised["channels"])
+    types = harmonised["channel_types"]
+    by_kind = {}
+    for name, kind in types.items():
+        by_kind.setdefault(kind, [0, 0])[0] += 1
+        by_kind[kind][1] += name in bads
+    fraction = max((b / n for n, b in by_kind.values()), default=0.0)  # the worst sensor type
     if bads:
-        level = "caution" if len(bads) / n_channels > limits["max_interpolated"] else "note"
-        flags.append(_flag(level, "channels-interpolated", f"{len(bads)} of {n_channels} channel(s) interpolated: "
+        level = "caution" if fraction > limits["max_interpolated"] else "note"
+        tally = ", ".join(f"{b} of {n} {k.upper()}" for k, (n, b) in by_kind.items() if b) if len(by_kind) > 1 \
+            else f"{len(bads)} of {n_channels}"
+        flags.append(_flag(level, "channels-interpolated", f"{tally} channel(s) interpolated: "
                            + ", ".join(sorted(bads))))
     for c, value in snr.items():
         if value is not None and value < limits["min_snr"]:
@@ -427,18 +573,19 @@ def _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr):
                            f"recorded at {harmonised['file_sampling_rate']:g} Hz, below 200 Hz"))
     if any(not np.isfinite(r["value"]) for r in rows):
         flags.append(_flag("unusable", "missing-features", "some features could not be computed"))
-    worst = max((FLAG_LEVELS.index(f["level"]) for f in flags), default=-1)
     return {
         "participant_id": recording.participant_id, "site": recording.site, "group": recording.group,
         "paradigm": recording.paradigm,
-        "verdict": "clear" if worst < 0 else FLAG_LEVELS[worst],
+        "verdict": verdict(flags),
         "flags": flags,
         "thresholds": limits,
         "channels": {"file": harmonised["file_channels"], "renamed": harmonised["renamed"],
                      "restored_reference": harmonised["restored_reference"],
                      "eog": harmonised["eog_channels"], "analysed": harmonised["channels"],
                      "bad": bads, "interpolated": cleaning["interpolated"],
-                     "interpolated_fraction": len(bads) / n_channels},
+                     "interpolated_fraction": fraction,
+                     "by_type": {k: {"channels": n, "interpolated": b} for k, (n, b) in by_kind.items()}},
+        "datatype": harmonised.get("datatype", "eeg"),
         "markers": {"counts": _marker_counts(markers), "unmapped": markers.unknown,
                     "trigger_delay_s": harmonised["trigger_delay_s"]},
         "trials": counts,

@@ -80,12 +80,12 @@ def figure_waves(curves):
     for lo, hi in curves.get("windows", []):
         ax.axvspan(lo * 1e3, hi * 1e3, color=PALETTE["window"], alpha=0.5, lw=0)
     times = [t * 1e3 for t in curves["times"]]
-    for colour, (name, wave) in zip(_colours(), curves.get("waves_uv", {}).items()):
+    for colour, (name, wave) in zip(_colours(), curves.get("waves", {}).items()):
         ax.plot(times, wave, color=colour, lw=1.6, label=name)
     ax.axhline(0, color="#999999", lw=0.6)
     ax.axvline(0, color="#999999", lw=0.6)
     ax.set_xlabel("time after marker (ms)")
-    ax.set_ylabel(f"{curves.get('region', '')} mean (uV)")
+    ax.set_ylabel(f"{curves.get('region', '')} mean ({curves.get('unit', 'uV')})")
     ax.legend(frameon=False, fontsize=8)
     return _png(fig)
 
@@ -107,10 +107,11 @@ def figure_itpc(curves):
 def figure_spectra(curves):
     """Region-mean spectra per condition, log power."""
     fig, ax = _figure()
-    for colour, (name, psd) in zip(_colours(), curves.get("psd_uv2_per_hz", {}).items()):
+    for colour, (name, psd) in zip(_colours(), curves.get("psd", {}).items()):
         ax.semilogy(curves["freqs"], psd, color=colour, lw=1.6, label=name)
     ax.set_xlabel("frequency (Hz)")
-    ax.set_ylabel(f"{curves.get('region', '')} PSD (uV^2/Hz)")
+    unit = curves.get("unit", "uV")
+    ax.set_ylabel(f"{curves.get('region', '')} PSD ({f'({unit})' if '/' in unit else unit}^2/Hz)")
     ax.set_xlim(0, curves["pass_band"][1] + 5.0)
     ax.set_ylim(bottom=_floor(curves))
     ax.legend(frameon=False, fontsize=8)
@@ -120,7 +121,7 @@ def figure_spectra(curves):
 def _floor(curves):
     """Lower y limit: the smallest PSD value inside the pass band, so the stop band does not squash the plot."""
     lo, hi = curves["pass_band"]
-    inside = [p for psd in curves.get("psd_uv2_per_hz", {}).values()
+    inside = [p for psd in curves.get("psd", {}).values()
               for f, p in zip(curves["freqs"], psd) if lo <= f <= hi and p > 0]
     return 0.5 * min(inside) if inside else None
 

@@ -63,7 +63,7 @@ def fractional_delay_kernel(delta, half=_HALF, beta=8.0):
     return taps / taps.sum()
 
 
-def cut(raw, plan, window):
+def cut(raw, plan, window, picks=None):
     """Cut trials from continuous data, aligned to the marker with sub-sample precision.
 
     Markers rarely fall on the analysis rate's sample grid (they were sampled at the
@@ -74,9 +74,11 @@ def cut(raw, plan, window):
     Parameters
     ----------
     raw : mne.io.BaseRaw
-        Cleaned data; EEG channels are cut.
+        Cleaned data.
     plan : list of (onset_s, condition, reason or None)
     window : (tmin, tmax), s
+    picks : array of int or None
+        Channels to cut; None cuts the data channels (EEG, magnetometers, gradiometers).
 
     Returns
     -------
@@ -88,7 +90,7 @@ def cut(raw, plan, window):
     import mne
     from numpy.lib.stride_tricks import sliding_window_view
 
-    picks = mne.pick_types(raw.info, eeg=True, meg=False)
+    picks = mne.pick_types(raw.info, eeg=True, meg=True, exclude=[]) if picks is None else picks
     data = raw.get_data(picks=picks)
     sfreq = raw.info["sfreq"]
     start = int(round(window[0] * sfreq))
@@ -115,7 +117,7 @@ def cut(raw, plan, window):
 MIN_ADAPTIVE_TRIALS = 10  # cross-validated thresholds need at least this many trials
 
 
-def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None, info=None):
+def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None, info=None, types=None):
     """Baseline-correct, apply the rejection policy, and split kept trials by condition.
 
     Parameters
@@ -133,6 +135,9 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
         thresholds are learned there and the decisions applied to ``x``.
     info : mne.Info or None
         Channel positions for interpolation (adaptive method only).
+    types : list of str or None
+        Sensor type of each channel ("eeg", "mag", "grad"); None means all EEG. Fixed
+        limits are those of each channel's type.
 
     Returns
     -------
@@ -145,7 +150,8 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
     if baseline is not None and len(x):
         sel = (times >= baseline[0]) & (times <= baseline[1])
         x = x - x[:, :, sel].mean(axis=2, keepdims=True)
-    keep, reasons, record = _decide(x, detection, ch_names, paradigm, info)
+    keep, reasons, record = _decide(x, detection, ch_names, paradigm, info,
+                                    types or ["eeg"] * len(ch_names))
     if record.get("interpolated_epochs") is not None:
         x = record.pop("interpolated_epochs")
     data = {c: [] for c in paradigm.conditions}
@@ -166,16 +172,30 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
     return arrays, entries, record
 
 
-def _decide(x, detection, ch_names, paradigm, info):
+def _fixed_limits(rejection, types):
+    """Per-channel peak-to-peak limits (SI) and the limits by type, as people read them."""
+    from .sensors import DISPLAY
+
+    by_kind = dict(rejection.peak_to_peak_meg, eeg=rejection.peak_to_peak)
+    limits = np.array([by_kind[t] for t in types], dtype=float)
+    shown = {t: f"{by_kind[t] * DISPLAY[t][1]:g} {DISPLAY[t][0]}" for t in dict.fromkeys(types)}
+    return limits, shown
+
+
+def _decide(x, detection, ch_names, paradigm, info, types):
     """keep mask, reason per trial, and a record, by the paradigm's method."""
     method = paradigm.rejection.method
     keep = np.ones(len(x), dtype=bool)
     reasons = [None] * len(x)
     if method == "fixed" and len(x):
-        keep, found = fixed_threshold(peak_to_peak(x), paradigm.rejection.peak_to_peak, ch_names)
+        limits, shown = _fixed_limits(paradigm.rejection, types)
+        keep, found = fixed_threshold(peak_to_peak(x), limits, ch_names, types=types)
         reasons = ["peak-to-peak: " + "; ".join(r.replace("peak-to-peak ", "", 1) for r in found[i])
                    for i in range(len(x))]
-        return keep, reasons, {"method": "fixed", "peak_to_peak_uv": paradigm.rejection.peak_to_peak * 1e6}
+        record = {"method": "fixed", "limits": shown}
+        if "eeg" in types:
+            record["peak_to_peak_uv"] = paradigm.rejection.peak_to_peak * 1e6
+        return keep, reasons, record
     if method == "adaptive":
         if len(x) < MIN_ADAPTIVE_TRIALS:
             return keep, reasons, {"method": "adaptive", "skipped": f"only {len(x)} trials; "

@@ -201,7 +201,7 @@ def test_decisions_name_consensus_and_cluster():
     labels[1, :4] = 2                # 4 interpolated neighbours
     labels[2, 0] = 2                 # 1 interpolated channel
     keep, reasons, by_consensus = _decisions(labels, np.array([True, False, False]),
-                                             np.array([0, 4, 1]), 3, 0.5)
+                                             np.array([0, 4, 1]), 3, {"eeg": 0.5}, ["eeg"] * 10)
     np.testing.assert_array_equal(keep, [False, False, True])
     assert reasons == ["adaptive: 6 of 10 channels beyond their thresholds (consensus drops at 5 or more)",
                        "adaptive: interpolated cluster of 4 neighbouring channels > 3", None]
@@ -235,12 +235,12 @@ def test_mismatched_arrays_are_an_input_error():
         adaptive_reject(np.zeros_like(x), np.zeros_like(x), info, max_cluster=0)
 
 
-def test_non_eeg_channels_are_an_input_error():
+def test_non_data_channels_are_an_input_error():
     info = make_info()
     info.set_channel_types({"Fp1": "eog"}, verbose=False)
     x = np.zeros((20, 32, N_TIMES))
-    with pytest.raises(InputDataError, match=r"info holds channel types \['eeg', 'eog'\], not only eeg; "
-                                             r"pass the info of the cut EEG channels"):
+    with pytest.raises(InputDataError, match=r"info holds channel types \['eeg', 'eog'\], not only eeg, mag and "
+                                             r"grad; pass the info of the cut data channels"):
         adaptive_reject(x, x, info)
 
 
@@ -300,8 +300,10 @@ def test_record_holds_the_learnt_parameters(scenario):
         "interpolations_per_channel", "cluster_counts", "interpolated"}
     assert list(record["thresholds_uv"]) == NAMES
     assert all(v > 0 for v in record["thresholds_uv"].values())
-    assert record["n_interpolate"] in interpolation_candidates(32)
-    assert record["consensus"] in CONSENSUS_CANDIDATES
+    assert list(record["n_interpolate"]) == ["eeg"] and list(record["consensus"]) == ["eeg"]
+    assert record["n_interpolate"]["eeg"] in interpolation_candidates(32)
+    assert record["consensus"]["eeg"] in CONSENSUS_CANDIDATES
+    assert record["adjacency"] == {"eeg": "mne find_ch_adjacency"}
     assert record["n_dropped"] == (~keep).sum() == record["n_dropped_consensus"] + record["n_dropped_cluster"]
     assert sum(record["cluster_counts"].values()) == N_EPOCHS - record["n_dropped_consensus"]
     assert [r is None for r in reasons] == keep.tolist() and cleaned.shape[0] == record["n_kept"]

@@ -41,7 +41,7 @@ def test_check_lists_channels_duration_and_markers(processed_study, capsys, monk
     out = capsys.readouterr().out.splitlines()
     birch = next(line for line in out if line.startswith("birch") and "oddball" in line)
     assert "64 ch (missing: none)" in birch and "512 Hz" in birch and "standard" in birch and "deviant" in birch
-    assert out[-1] == "18 recording(s) found, 0 with problems."
+    assert out[-1] == "19 recording(s) found, 0 with problems."
 
 
 def test_check_reports_unmapped_codes_as_a_problem(processed_study, tmp_path, capsys):

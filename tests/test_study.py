@@ -29,7 +29,7 @@ def _value(group, feature):
 
 def test_every_recording_is_processed_and_written(processed_study):
     study, summaries = processed_study
-    assert len(summaries) == 18 and all(s["status"] == "done" for s in summaries), summaries
+    assert len(summaries) == 19 and all(s["status"] == "done" for s in summaries), summaries
     for recording in discover(study):
         paths = recording_paths(study.output, recording)
         assert all(p.is_file() for p in paths.values()), recording
@@ -42,7 +42,7 @@ def test_every_recording_is_processed_and_written(processed_study):
 
 def test_group_table_has_site_and_group_columns(group):
     assert {"participant_id", "site", "group", "paradigm", "feature", "value", "unit"} <= set(group.columns)
-    assert set(group.site) == {"alder", "birch", "cedar"}
+    assert set(group.site) == {"alder", "birch", "cedar", "dogwood"}
     assert set(group.group) == {"control", "comparison"}
 
 
@@ -127,7 +127,7 @@ def test_provenance_records_inputs_definitions_versions_and_filter(processed_stu
 def test_pages_are_self_contained_and_carry_the_caution(processed_study):
     study, _ = processed_study
     pages = sorted(study.output.rglob("*_report.html")) + [study.output / "group" / "report.html"]
-    assert len(pages) == 19
+    assert len(pages) == 20
     for page in pages:
         html = page.read_text()
         assert CAUTION in html
@@ -179,7 +179,7 @@ def test_default_cleaning_brings_the_mismatch_closer_to_truth_than_no_cleaning(p
     (tmp_path / "study.toml").write_text(_oddball_only(study_text, study.root))
     run_study(load_study(tmp_path / "study.toml"), jobs=2)
     expected = {t["participant_id"]: t["expected"]["mismatch_mean_amplitude_uv"]
-                for t in truth["recordings"] if t["paradigm"] == "oddball"}
+                for t in truth["recordings"] if t["paradigm"] == "oddball" and t["modality"] == "eeg"}
 
     def error(folder):
         table = pd.read_csv(folder / "group" / "features.tsv", sep="\t")
@@ -346,8 +346,8 @@ def test_mastoid_inversion_is_a_qc_metric(processed_study):
     # REFERENCES F19: under the average reference the mismatch inverts at the mastoids.
     study, _ = processed_study
     for recording in discover(study):
-        if recording.paradigm != "oddball":
-            continue
+        if recording.paradigm != "oddball" or recording.datatype != "eeg":
+            continue  # MEG has no mastoid electrodes
         qc = json.loads(recording_paths(study.output, recording)["qc"].read_text())
         inversion = qc["mastoid_inversion"]["mismatch"]
         assert inversion["mastoids"] == ["TP9", "TP10"] and inversion["window_s"] == [0.1, 0.25]
@@ -365,3 +365,23 @@ def test_coherence_is_derived_from_the_cross_spectra(processed_study):
         np.testing.assert_allclose(ds["coherence"].values, expected, rtol=1e-10)
         assert ds["coherence"].attrs["units"] == "1"
         np.testing.assert_allclose(np.einsum("...ii->...i", ds["coherence"].values), 1.0)
+
+
+def test_recordings_without_eog_carry_a_flag_and_those_with_eog_count_kept_blinks(processed_study, truth):
+    """Issue acceptance: a recording without EOG gets ocular handling or a clear flag saying why not."""
+    study, _ = processed_study
+    for recording in discover(study):
+        qc = json.loads(recording_paths(study.output, recording)["qc"].read_text())
+        codes = {f["code"]: f for f in qc["flags"]}
+        if not qc["channels"]["eog"]:  # Alder and Birch record no EOG
+            assert "no-eog" in codes and "left to epoch rejection" in codes["no-eog"]["message"], recording
+            assert qc["ocular"]["kept_blinks"] is None
+        else:  # Cedar (VEOG) and Dogwood (EOG061): blinks found on the vertical EOG
+            blinks = qc["ocular"]["kept_blinks"]
+            assert blinks["channel"] in ("VEOG", "EOG061") and blinks["blinks"] > 0
+            t = next(t for t in truth["recordings"] if t["participant_id"] == recording.participant_id
+                     and t["paradigm"] == recording.paradigm)
+            if recording.paradigm == "oddball":
+                # Most injected blinks are found (threshold 75 uV on the 1-10 Hz EOG).
+                assert blinks["blinks"] >= 0.6 * len(t["blinks_s"])
+                assert blinks["fraction"] <= 0.1

@@ -20,7 +20,7 @@ import scipy.signal
 import scipy.special
 
 from heschl import synth
-from heschl.synth import COMMON_CHANNELS, SITES, make_study, write_recording
+from heschl.synth import COMMON_CHANNELS, MEG_SITES, SITES, make_study, write_recording
 from heschl.synth import brain, events
 from heschl.synth.sites import CHANNELS_32, CHANNELS_64
 
@@ -75,8 +75,10 @@ def _all_onsets(truth):
 
 
 def test_public_names():
-    assert synth.__all__ == ["make_study", "write_recording", "SITES", "COMMON_CHANNELS"]
+    assert synth.__all__ == ["make_study", "write_recording", "SITES", "MEG_SITES",
+                             "COMMON_CHANNELS"]
     assert SITES == ("alder", "birch", "cedar")
+    assert MEG_SITES == ("dogwood",)
     assert len(COMMON_CHANNELS) == len(set(COMMON_CHANNELS)) == 33
     assert COMMON_CHANNELS[:32] == CHANNELS_32 and COMMON_CHANNELS[32] == "FCz"
     assert len(CHANNELS_64) == len(set(CHANNELS_64)) == 64
@@ -314,6 +316,11 @@ def test_make_study_layout_and_truth(tmp_path, short):
     assert study["output"] == "derivatives/heschl"
     assert study["common_channels"] == list(COMMON_CHANNELS)
     assert [a["paradigm"] for a in study["analyses"]] == ["oddball", "clicktrain", "rest"]
+    assert [a["feature_sets"] for a in study["analyses"]] == [
+        ["oddball-core", "oddball-meg"], ["clicktrain-core"], ["rest-core"]]
+    assert set(study["sites"]) == set(SITES + MEG_SITES)
+    assert study["sites"]["dogwood"]["datatype"] == "meg"
+    assert "recording_reference" not in study["sites"]["dogwood"]
     assert study["sites"]["birch"]["trigger_delay_ms"] == 18.0
     assert study["sites"]["birch"]["recording_reference"] == "linked-mastoids"
     assert study["sites"]["alder"]["recording_reference"] == "FCz"
@@ -325,14 +332,18 @@ def test_make_study_layout_and_truth(tmp_path, short):
 
     truth = json.loads((root / "truth.json").read_text(encoding="utf-8"))
     assert truth["seed"] == SEED and truth["size"] == "test"
-    assert len(truth["recordings"]) == 3 * 2 * 3
+    # Three EEG sites with two subjects and three paradigms; Dogwood: D01, oddball.
+    assert len(truth["recordings"]) == 3 * 2 * 3 + 1
     for site, spec in study["sites"].items():
         for paradigm, pattern in spec["files"].items():
             assert not Path(pattern).is_absolute()
             found = sorted(p.relative_to(root).as_posix() for p in root.glob(pattern))
             listed = sorted(r["files"][0] for r in truth["recordings"]
                             if r["site"] == site and r["paradigm"] == paradigm)
-            assert found == listed and len(found) == 2
+            assert found == listed and len(found) == (1 if site in MEG_SITES else 2)
+    assert {r["modality"] for r in truth["recordings"] if r["site"] in SITES} == {"eeg"}
+    assert [(r["participant_id"], r["paradigm"], r["modality"]) for r in truth["recordings"]
+            if r["site"] == "dogwood"] == [("sub-D01", "oddball", "meg")]
     for record in truth["recordings"]:
         for name in record["files"]:
             assert (root / name).is_file()
@@ -344,7 +355,8 @@ def test_make_study_layout_and_truth(tmp_path, short):
     assert rows[0] == "participant_id\tsite\tgroup"
     assert rows[1:] == ["sub-A01\talder\tcontrol", "sub-A02\talder\tcomparison",
                         "sub-B01\tbirch\tcontrol", "sub-B02\tbirch\tcomparison",
-                        "sub-C01\tcedar\tcontrol", "sub-C02\tcedar\tcomparison"]
+                        "sub-C01\tcedar\tcontrol", "sub-C02\tcedar\tcomparison",
+                        "sub-D01\tdogwood\tcontrol"]
 
 
 def test_low_count_recording_spoils_most_deviants(tmp_path):

@@ -65,13 +65,19 @@ def _limits(limit, n_channels):
     return np.broadcast_to(limits, (n_channels,))
 
 
-def _reason(value, lim, name):
+# Sensor type -> (unit shown, factor from SI); EEG in uV, magnetometers in fT, gradiometers in fT/cm.
+_UNITS = {"eeg": ("uV", 1e6), "mag": ("fT", 1e15), "grad": ("fT/cm", 1e13)}
+
+
+def _reason(value, lim, name, kind="eeg"):
     if not np.isfinite(value):
         return f"peak-to-peak not finite ({value}) at {name}"
-    return f"peak-to-peak {_microvolts(value, lim)} uV > {_microvolts(lim)} uV at {name}"
+    unit, factor = _UNITS[kind]
+    scale = factor / 1e6  # _microvolts shows value * 1e6
+    return f"peak-to-peak {_microvolts(value * scale, lim * scale)} {unit} > {_microvolts(lim * scale)} {unit} at {name}"
 
 
-def fixed_threshold(ptp, limit, channel_names):
+def fixed_threshold(ptp, limit, channel_names, types=None):
     """Mark epochs whose peak-to-peak amplitude exceeds a fixed limit on any channel.
 
     Parameters
@@ -83,6 +89,9 @@ def fixed_threshold(ptp, limit, channel_names):
         strictly above it (or is not finite). 100e-6 V is a common choice for EEG.
     channel_names : sequence of str, length n_channels
         Names used in the reasons.
+    types : sequence of str or None
+        Sensor type per channel ("eeg", "mag", "grad"), for the unit of the reasons
+        (uV, fT, fT/cm); None means all EEG. Limits are then in T or T/m for MEG channels.
 
     Returns
     -------
@@ -99,10 +108,11 @@ def fixed_threshold(ptp, limit, channel_names):
             "fixed_threshold", f"ptp has shape {ptp.shape} but {len(names)} channel names "
             "were given", "pass ptp shaped (n_epochs, n_channels) and one name per channel",
             key="channel_names"))
+    kinds = list(types) if types is not None else ["eeg"] * len(names)
     limits = _limits(limit, len(names))
     bad = ~np.isfinite(ptp) | (ptp > limits)
     keep = ~bad.any(axis=1)
-    reasons = [tuple(_reason(ptp[e, c], limits[c], names[c]) for c in np.flatnonzero(row))
+    reasons = [tuple(_reason(ptp[e, c], limits[c], names[c], kinds[c]) for c in np.flatnonzero(row))
                for e, row in enumerate(bad)]
     n_drop = int((~keep).sum())
     logger.info("Dropped %d of %d epochs (%.0f %%) by peak-to-peak limit",

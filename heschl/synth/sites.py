@@ -1,6 +1,7 @@
 """How each fictional site records and stores its files.
 
-This module is the generator's own knowledge of the three sites of the synthetic study.
+This module is the generator's own knowledge of the sites of the synthetic study: three
+EEG sites (:data:`SITES`) and one MEG site (:data:`MEG_SITES`, oddball only).
 It deliberately shares no table with the pipeline: if the two agreed because they used
 the same table, a recovery test could not catch a wrong entry in it.
 
@@ -12,6 +13,8 @@ from dataclasses import dataclass, field
 
 __all__ = [
     "SITES",
+    "MEG_SITES",
+    "ALL_SITES",
     "CHANNELS_64",
     "CHANNELS_32",
     "COMMON_CHANNELS",
@@ -23,7 +26,11 @@ __all__ = [
     "old_style_name",
 ]
 
+#: The EEG sites.
 SITES = ("alder", "birch", "cedar")
+#: The MEG sites (their sensors are described in :mod:`heschl.synth.meg`).
+MEG_SITES = ("dogwood",)
+ALL_SITES = SITES + MEG_SITES
 PARADIGMS = ("oddball", "clicktrain", "rest")
 GROUPS = ("control", "comparison")
 SIZES = ("test", "demo", "bench")
@@ -82,13 +89,14 @@ class SiteSpec:
     letter : str
         First letter of the site's subject ids (``"A"`` gives ``A01``).
     file_format : str
-        ``"brainvision"``, ``"edf"`` or ``"fif"``.
+        ``"brainvision"``, ``"edf"``, ``"fif"`` (EEG) or ``"meg-fif"``.
     sfreq : float
         Sampling rate of the stored file, Hz.
     channels : tuple of str
-        EEG channels stored, 10-10 spelling, in file order.
+        EEG channels stored, 10-10 spelling, in file order (none at an MEG site).
     reference : str
-        Reference at recording: a channel name, ``"linked-mastoids"`` or ``"average"``.
+        Reference at recording: a channel name, ``"linked-mastoids"``, ``"average"``,
+        or ``"none"`` (MEG).
     line_frequency : float
         Mains frequency at the site, Hz.
     trigger_delay_s : float
@@ -96,7 +104,11 @@ class SiteSpec:
     markers : dict
         ``{paradigm: {condition: code}}``: the code or text the site stores.
     eog : tuple of str
-        Bipolar EOG channels stored beside the EEG.
+        Bipolar EOG channels stored beside the EEG or MEG.
+    modality : str
+        ``"eeg"`` or ``"meg"``.
+    paradigms : tuple of str
+        Paradigms the site records.
     """
 
     name: str
@@ -109,6 +121,8 @@ class SiteSpec:
     trigger_delay_s: float
     markers: dict = field(default_factory=dict)
     eog: tuple = ()
+    modality: str = "eeg"
+    paradigms: tuple = PARADIGMS
 
     def file_channel_names(self):
         """Return the EEG channel names as the site spells them in its files."""
@@ -136,6 +150,8 @@ class SiteSpec:
             return [f"{stem}_eeg.vhdr", f"{stem}_eeg.vmrk", f"{stem}_eeg.eeg"]
         if self.file_format == "edf":
             return [f"{stem}_eeg.edf"]
+        if self.file_format == "meg-fif":
+            return [f"{stem}_meg.fif"]
         return [f"{stem}_raw.fif"]
 
 
@@ -185,5 +201,19 @@ SITE_SPECS = {
             "rest": {"eyes-open": 10, "eyes-closed": 20},
         },
         eog=("HEOG", "VEOG"),
+    ),
+    "dogwood": SiteSpec(
+        name="dogwood",
+        letter="D",
+        file_format="meg-fif",
+        sfreq=1000.0,
+        channels=(),
+        reference="none",
+        line_frequency=50.0,
+        trigger_delay_s=0.0,
+        markers={"oddball": {"standard": 1, "deviant": 2}},
+        eog=("EOG061",),
+        modality="meg",
+        paradigms=("oddball",),
     ),
 }

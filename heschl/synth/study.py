@@ -1,10 +1,16 @@
 """Write recordings and whole synthetic studies, with their ground truth.
 
-A recording is generated in four steps: the subject's brain (reference-free potentials at
-1000 Hz), scalp-level artefacts, the site's own reference and channel faults, then the
-site's sampling rate, rail and file format. Random numbers come from streams keyed by
-(seed, subject, group, paradigm, purpose), never by site: the same subject written by two
-sites has the same brain, the same artefacts and the same stimulus schedule.
+An EEG recording is generated in four steps: the subject's brain (reference-free
+potentials at 1000 Hz), scalp-level artefacts, the site's own reference and channel
+faults, then the site's sampling rate, rail and file format. Random numbers come from
+streams keyed by (seed, subject, group, paradigm, purpose), never by site: the same subject
+written by two EEG sites has the same brain, the same artefacts and the same stimulus
+schedule.
+
+The MEG site (Dogwood, :mod:`heschl.synth.meg`) records the oddball only. It shares the
+subject's parameters, stimulus schedule and blink times with the EEG sites (same
+streams); its background, sensor noise, drift, mains and bad channels have streams of
+their own, so adding it changed no EEG file.
 """
 from __future__ import annotations
 
@@ -20,21 +26,29 @@ import numpy as np
 import scipy.signal
 
 from . import artefacts as art
-from . import geometry
+from . import geometry, meg
 from .brain import SFREQ, background_patterns, draw_subject_params, expected_values
 from .brain import scalp_potentials
 from .events import make_schedule
 from .sites import (
-    COMMON_CHANNELS, GROUPS, PARADIGMS, SITE_SPECS, SITES, SIZES,
+    ALL_SITES, COMMON_CHANNELS, GROUPS, MEG_SITES, PARADIGMS, SITE_SPECS, SITES, SIZES,
 )
-from .writers import write_brainvision, write_edf, write_fif
+from .writers import write_brainvision, write_edf, write_fif, write_meg_fif
 
-__all__ = ["make_study", "write_recording", "SUBJECTS_PER_GROUP", "study_toml_text"]
+__all__ = ["make_study", "write_recording", "SUBJECTS_PER_GROUP", "MEG_SUBJECTS",
+           "FEATURE_SETS", "study_toml_text", "SITES", "MEG_SITES"]
 
 logger = logging.getLogger(__name__)
 
-#: Subjects per group and site for each size.
+#: Subjects per group and EEG site for each size.
 SUBJECTS_PER_GROUP = {"test": 1, "demo": 2, "bench": 1}
+
+#: The subjects of each MEG site, ``(id, group)``, at every size.
+MEG_SUBJECTS = {"dogwood": (("D01", "control"),)}
+
+#: Feature sets of each paradigm's analysis in the study file.
+FEATURE_SETS = {"oddball": ("oddball-core", "oddball-meg"),
+                "clicktrain": ("clicktrain-core",), "rest": ("rest-core",)}
 
 #: The one recording whose deviants are mostly spoiled: Birch's first comparison
 #: subject, oddball.
@@ -43,6 +57,7 @@ LOW_COUNT = {"site": "birch", "paradigm": "oddball", "group": "comparison"}
 _STIM_PULSE_SAMPLES = 5
 _START = datetime.datetime(2026, 12, 1, 9, 0, 0)
 STUDY_NAME = "Alder-Birch-Cedar auditory study (synthetic)"
+_STIM_NAMES = {"fif": "STI 014", "meg-fif": meg.STIM_CHANNEL}
 
 
 def _stream(seed, *keys):
@@ -144,12 +159,26 @@ def _bad_channels(data, names, spec, rng, common_channels):
              "kind": b["kind"]} for b in chosen]
 
 
+def _start_time(subject, paradigm):
+    """Start of a recording: one day per subject number, 20 min per paradigm."""
+    return _START + datetime.timedelta(days=_subject_number(subject),
+                                       minutes=20 * PARADIGMS.index(paradigm))
+
+
+def _stim_channel(onsets, n_times, sfreq):
+    """Stimulus channel: a pulse of the code at every ``(time_s, code)``, 0 elsewhere."""
+    stim = np.zeros(n_times)
+    for time, code in onsets:
+        first = int(round(time * sfreq))
+        stim[first:first + _STIM_PULSE_SAMPLES] = code
+    return stim
+
+
 def _write_files(folder, spec, subject, paradigm, data, names, schedule):
     """Write the stored signals in the site's format; return the file names."""
     stem = f"sub-{subject}_task-{paradigm}"
     codes = spec.markers[paradigm]
-    start = _START + datetime.timedelta(days=_subject_number(subject),
-                                        minutes=20 * PARADIGMS.index(paradigm))
+    start = _start_time(subject, paradigm)
     onsets = [(t + spec.trigger_delay_s, codes[c]) for t, c in schedule.all_onsets()]
     if spec.file_format == "brainvision":
         markers = [(t, "Stimulus", code) for t, code in onsets]
@@ -159,10 +188,7 @@ def _write_files(folder, spec, subject, paradigm, data, names, schedule):
         return write_edf(folder / f"{stem}_eeg.edf", data, names, spec.sfreq,
                          annotations=onsets, patient=f"sub-{subject}", start=start,
                          rail=art.RAIL_V)
-    stim = np.zeros(data.shape[1])
-    for time, code in onsets:
-        first = int(round(time * spec.sfreq))
-        stim[first:first + _STIM_PULSE_SAMPLES] = code
+    stim = _stim_channel(onsets, data.shape[1], spec.sfreq)
     types = ["eeg"] * len(spec.channels) + ["eog"] * len(spec.eog)
     return write_fif(folder / f"{stem}_raw.fif", data, names, types, spec.sfreq,
                      stim=stim, line_freq=spec.line_frequency, start=start,
@@ -171,8 +197,12 @@ def _write_files(folder, spec, subject, paradigm, data, names, schedule):
 
 def _check_arguments(site, paradigm, group, size, seed):
     """Validate write_recording's choices."""
-    _check_choice("site", site, SITES)
+    _check_choice("site", site, ALL_SITES)
     _check_choice("paradigm", paradigm, PARADIGMS)
+    recorded = SITE_SPECS[site].paradigms
+    if paradigm not in recorded:
+        raise ValueError(f"heschl.synth: paradigm: {paradigm!r} is not recorded at {site} "
+                         f"(an MEG site); choose one of {', '.join(map(repr, recorded))}.")
     _check_choice("group", group, GROUPS)
     _check_choice("size", size, SIZES)
     if int(seed) < 0:
@@ -186,8 +216,10 @@ def write_recording(folder, *, site, paradigm, subject, group, seed, size="demo"
 
     The brain, the stimulus schedule and the scalp-level artefacts depend on
     ``(seed, subject, group, paradigm, size)`` only, so writing the same subject as two
-    sites gives two files of one brain. The mains frequency, the reference, the
-    channels, the rate and the format are the site's. With ``artefacts=True`` and
+    EEG sites gives two files of one brain. The mains frequency, the reference, the
+    channels, the rate and the format are the site's. ``site="dogwood"`` writes the MEG
+    recording of :func:`heschl.synth.meg.simulate_oddball` (oddball only) with the same
+    subject parameters, schedule and blink times. With ``artefacts=True`` and
     ``(site, paradigm, group) == ("birch", "oddball", "comparison")`` the first
     comparison subject of the size (``B02`` for test and bench, ``B03`` for demo) is
     the low-count recording: all but 18 deviants carry a large transient.
@@ -196,10 +228,11 @@ def write_recording(folder, *, site, paradigm, subject, group, seed, size="demo"
     ----------
     folder : path-like
         Folder to write into; created if missing.
-    site : {"alder", "birch", "cedar"}
+    site : {"alder", "birch", "cedar", "dogwood"}
         How the file is stored.
     paradigm : {"oddball", "clicktrain", "rest"}
-        What was recorded.
+        What was recorded (Dogwood records only ``"oddball"``; the others raise
+        ValueError there).
     subject : str
         Subject id, with or without ``sub-`` (``"A01"`` and ``"sub-A01"`` are the same).
     group : {"control", "comparison"}
@@ -210,10 +243,11 @@ def write_recording(folder, *, site, paradigm, subject, group, seed, size="demo"
         Recording length class.
     artefacts : bool, default=True
         Add blinks, muscle, drift, bad channels, a saturation (and the low-count
-        transients); line noise is always present.
+        transients); line noise is always present. At Dogwood: blinks, drift and two
+        bad channels.
     common_channels : sequence of str, optional
         The study's common channels (default :data:`COMMON_CHANNELS`): bad channels are
-        drawn from them and the expected values use their average reference.
+        drawn from them and the expected values use their average reference (EEG).
 
     Returns
     -------
@@ -226,6 +260,8 @@ def write_recording(folder, *, site, paradigm, subject, group, seed, size="demo"
     common = tuple(common_channels or COMMON_CHANNELS)
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
+    if spec.modality == "meg":
+        return _write_meg_recording(folder, spec, subject, group, seed, size, artefacts)
     keys = (subject, group, paradigm, size)
 
     params = draw_subject_params(_stream(seed, "subject", subject, group), group)
@@ -256,16 +292,50 @@ def write_recording(folder, *, site, paradigm, subject, group, seed, size="demo"
                          bad, saturation, low_count, expected)
 
 
+def _meg_streams(seed, subject, group, keys):
+    """The random streams of a Dogwood recording (see meg.simulate_oddball)."""
+    streams = {name: _stream(seed, f"meg-{name}", *keys)
+               for name in ("noise", "drift", "line", "bad")}
+    streams["patterns"] = _stream(seed, "meg-patterns", subject, group)
+    streams["blinks"] = _stream(seed, "blinks", *keys)  # the EEG sites' blink times
+    return streams
+
+
+def _write_meg_recording(folder, spec, subject, group, seed, size, artefacts):
+    """Write one Dogwood (MEG) oddball recording; return its truth record."""
+    paradigm = "oddball"
+    keys = (subject, group, paradigm, size)
+    params = draw_subject_params(_stream(seed, "subject", subject, group), group)
+    schedule = make_schedule(_stream(seed, "events", *keys), paradigm, size)
+    recording = meg.simulate_oddball(schedule, params,
+                                     _meg_streams(seed, subject, group, keys),
+                                     artefacts=artefacts)
+    codes = spec.markers[paradigm]
+    onsets = [(t + spec.trigger_delay_s, codes[c]) for t, c in schedule.all_onsets()]
+    stim = _stim_channel(onsets, recording.data.shape[1], spec.sfreq)
+    files = write_meg_fif(folder / spec.file_names(subject, paradigm)[0], recording.data,
+                          meg.measurement_info(spec.sfreq), stim=stim,
+                          start=_start_time(subject, paradigm), subject=f"sub-{subject}")
+    names = list(meg.CHANNELS) + list(spec.eog)
+    logger.info("Wrote %s %s sub-%s (%d channels, %d s).", spec.name, paradigm, subject,
+                len(names), schedule.duration)
+    truth = {"blinks_s": recording.blinks_s, "muscle_s": [], "spoiled_deviants_s": []}
+    return _truth_record(spec, subject, group, schedule, files, names, params, truth,
+                         recording.bad_channels, None, False, meg.expected_fields(params))
+
+
 def _truth_record(spec, subject, group, schedule, files, names, params, truth, bad,
                   saturation, low_count, expected):
     """Assemble the JSON-ready truth of one recording."""
     paradigm = schedule.paradigm
-    channel_names = list(names) + (["STI 014"] if spec.file_format == "fif" else [])
+    stim = _STIM_NAMES.get(spec.file_format)
+    channel_names = list(names) + ([stim] if stim else [])
     return {
         "site": spec.name,
         "participant_id": f"sub-{subject}",
         "group": group,
         "paradigm": paradigm,
+        "modality": spec.modality,
         "files": files,
         "sfreq": spec.sfreq,
         "duration_s": schedule.duration,
@@ -289,6 +359,8 @@ def _truth_record(spec, subject, group, schedule, files, names, params, truth, b
 
 def _subjects(site, size):
     """``(subject id, group)`` of one site: controls first, then comparisons."""
+    if site in MEG_SUBJECTS:
+        return list(MEG_SUBJECTS[site])
     n = SUBJECTS_PER_GROUP[size]
     letter = SITE_SPECS[site].letter
     return [(f"{letter}{g * n + k + 1:02d}", group)
@@ -301,19 +373,27 @@ def _toml_list(values):
 
 
 def _site_toml(site):
-    """The ``[sites.<site>]`` tables of the study file."""
+    """The ``[sites.<site>]`` tables of the study file.
+
+    An EEG site names its recording reference and trigger delay; an MEG site has
+    ``datatype = "meg"``, no reference and no delay (0 ms).
+    """
     spec = SITE_SPECS[site]
-    lines = [f"[sites.{site}]",
-             f"recording_reference = {json.dumps(spec.reference)}",
-             f"line_frequency = {spec.line_frequency:.1f}",
-             f"trigger_delay_ms = {spec.trigger_delay_s * 1e3:.1f}"]
+    lines = [f"[sites.{site}]"]
+    if spec.modality == "eeg":
+        lines.append(f"recording_reference = {json.dumps(spec.reference)}")
+    else:
+        lines.append(f"datatype = {json.dumps(spec.modality)}")
+    lines.append(f"line_frequency = {spec.line_frequency:.1f}")
+    if spec.modality == "eeg":
+        lines.append(f"trigger_delay_ms = {spec.trigger_delay_s * 1e3:.1f}")
     if spec.eog:
         lines.append(f"eog_channels = {_toml_list(spec.eog)}")
     lines.append(f"[sites.{site}.files]")
-    for paradigm in PARADIGMS:
+    for paradigm in spec.paradigms:
         name = spec.file_names("*", paradigm)[0]
         lines.append(f'{paradigm} = "raw/{site}/sub-*/{name}"')
-    for paradigm in PARADIGMS:
+    for paradigm in spec.paradigms:
         lines.append(f"[sites.{site}.markers.{paradigm}]")
         for condition, code in spec.markers[paradigm].items():
             text = f"Stimulus/{code}" if spec.file_format == "brainvision" else str(code)
@@ -339,14 +419,15 @@ def study_toml_text(common_channels=COMMON_CHANNELS):
             f"common_channels = {_toml_list(common_channels)}", ""]
     for paradigm in PARADIGMS:
         head += ["[[analyses]]", f"paradigm = {json.dumps(paradigm)}",
-                 f"feature_sets = {_toml_list([paradigm + '-core'])}", ""]
-    return "\n".join(head) + "\n" + "\n".join(_site_toml(site) for site in SITES)
+                 f"feature_sets = {_toml_list(FEATURE_SETS[paradigm])}", ""]
+    return "\n".join(head) + "\n" + "\n".join(_site_toml(site) for site in ALL_SITES)
 
 
 def make_study(root, *, size="demo", seed=20261201, artefacts=True):
-    """Write the whole synthetic three-site study under ``root``.
+    """Write the whole synthetic study under ``root``: three EEG sites and Dogwood (MEG).
 
-    Writes ``raw/<site>/sub-<id>/...`` for every site, subject and paradigm, then
+    Writes ``raw/<site>/sub-<id>/...`` for every site, subject and paradigm the site
+    records (Dogwood: subject ``D01``, control, oddball only, at every size), then
     ``participants.tsv``, ``truth.json`` and ``study.toml`` (paths relative to it).
 
     Parameters
@@ -354,7 +435,7 @@ def make_study(root, *, size="demo", seed=20261201, artefacts=True):
     root : path-like
         Study folder; created if missing, existing files of the same names replaced.
     size : {"test", "demo", "bench"}, default="demo"
-        Subjects per group and site (1, 2, 1) and recording lengths.
+        Subjects per group and EEG site (1, 2, 1) and recording lengths.
     seed : int, default=20261201
         Study seed; every random number derives from it.
     artefacts : bool, default=True
@@ -368,11 +449,11 @@ def make_study(root, *, size="demo", seed=20261201, artefacts=True):
     _check_choice("size", size, SIZES)
     root = Path(root)
     recordings, participants = [], []
-    for site in SITES:
+    for site in ALL_SITES:
         for subject, group in _subjects(site, size):
             participants.append((f"sub-{subject}", site, group))
             relative = Path("raw", site, f"sub-{subject}")
-            for paradigm in PARADIGMS:
+            for paradigm in SITE_SPECS[site].paradigms:
                 record = write_recording(root / relative, site=site, paradigm=paradigm,
                                          subject=subject, group=group, seed=seed,
                                          size=size, artefacts=artefacts)

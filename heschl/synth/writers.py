@@ -3,6 +3,8 @@
 - BrainVision (Alder): our own writer; header, marker file and float32 samples in µV.
 - EDF+ (Birch): through edfio; 16-bit samples, physical dimension ``uV``, annotations.
 - FIF (Cedar): through mne; volts, EOG channels and a stimulus channel.
+- FIF (Dogwood, MEG): through mne; magnetometers in T, planar gradiometers in T/m with
+  their coil frames, a vertical EOG channel and a stimulus channel.
 
 Every writer takes the stored signals in volts, shape (n_channels, n_times), and names
 the files it wrote. Output bytes depend only on the inputs (no clock, no host name).
@@ -14,7 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["write_brainvision", "write_edf", "write_fif"]
+__all__ = ["write_brainvision", "write_edf", "write_fif", "write_meg_fif"]
 
 _HEADER = """\
 Brain Vision Data Exchange Header File Version 1.0
@@ -188,6 +190,41 @@ def write_fif(path, data, ch_names, ch_types, sfreq, *, stim, line_freq, start, 
     info["subject_info"] = {"his_id": subject}
     raw = mne.io.RawArray(np.vstack([data, stim[None, :]]), info, verbose=False)
     raw.set_montage(standard_montage(), on_missing="ignore", verbose=False)
+    raw.set_meas_date(start.replace(tzinfo=datetime.timezone.utc))
+    raw.save(Path(path), overwrite=True, verbose=False)
+    return [Path(path).name]
+
+
+def write_meg_fif(path, data, info, *, stim, start, subject):
+    """Write an MEG FIF raw file: SI units, sensor geometry and a stimulus channel.
+
+    Parameters
+    ----------
+    path : path-like
+        File to write; its name must end in ``_meg.fif``.
+    data : ndarray, shape (n_channels - 1, n_times)
+        Every channel of ``info`` but the last (the stimulus channel), in SI units
+        (T, T/m, V).
+    info : mne.Info
+        Channel names, types, coil frames and the sampling rate; the last channel is
+        the stimulus channel. Not modified.
+    stim : ndarray, shape (n_times,)
+        Stimulus channel (integer codes, 0 between pulses).
+    start : datetime.datetime
+        Start of the recording (naive, taken as UTC).
+    subject : str
+        Participant id, stored as the subject's hospital id.
+
+    Returns
+    -------
+    list of str
+        The file name written.
+    """
+    import mne
+
+    info = info.copy()
+    info["subject_info"] = {"his_id": subject}
+    raw = mne.io.RawArray(np.vstack([data, stim[None, :]]), info, verbose=False)
     raw.set_meas_date(start.replace(tzinfo=datetime.timezone.utc))
     raw.save(Path(path), overwrite=True, verbose=False)
     return [Path(path).name]

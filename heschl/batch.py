@@ -1,6 +1,10 @@
-"""Run a whole study: discover recordings, process each as an independent task (serially or
-in local worker processes), skip recordings whose outputs are up to date, then write the
-study tables and page. One failing recording never stops the others.
+"""Run a whole study: discover recordings, process each as an independent task (serially,
+in local worker processes, or on a Dask cluster), skip recordings whose outputs are up to
+date, then write the study tables and page. One failing recording never stops the others.
+
+Every task is pure (file bytes and definitions in, files out) and writes its outputs
+atomically, with provenance last, so any scheduler can run it, a crashed run resumes
+where it stopped, and a task run twice writes the same files.
 """
 from __future__ import annotations
 
@@ -79,16 +83,22 @@ def process_and_write(study, recording, force=False):
     return summary
 
 
-def run_study(study, *, jobs=1, force=False):
+def run_study(study, *, jobs=1, force=False, cluster=None):
     """Process every recording of a study and write the study-level outputs.
 
     Parameters
     ----------
     study : heschl.config.Study
     jobs : int, default=1
-        Worker processes; -1 uses every core (scikit-learn's meaning of ``n_jobs``).
+        Worker processes; -1 uses every core (scikit-learn's meaning of ``n_jobs``). With
+        ``cluster="local"``, the number of Dask workers.
     force : bool, default=False
         Process recordings even when their outputs are up to date.
+    cluster : str or distributed.Client or None, default=None
+        Run the tasks on Dask (``pip install "heschl[dask]"``): a scheduler address such as
+        ``"tcp://10.0.0.5:8786"``, ``"local"`` for a cluster of ``jobs`` worker processes on
+        this machine, or a connected ``distributed.Client``. Workers must see the study's
+        files and output folder at the same paths (a shared file system).
 
     Returns
     -------
@@ -101,10 +111,13 @@ def run_study(study, *, jobs=1, force=False):
     recordings = discover(study)
     write_dataset_description(study.output, study.name)
     jobs = os.cpu_count() if jobs == -1 else max(1, int(jobs))
-    log.info("Processing %d recordings with %d worker(s)", len(recordings), jobs)
-    if jobs == 1 or len(recordings) < 2:
+    if cluster is not None:
+        summaries = _run_on_dask(study, recordings, force, cluster, jobs)
+    elif jobs == 1 or len(recordings) < 2:
+        log.info("Processing %d recordings in this process", len(recordings))
         summaries = [process_and_write(study, r, force) for r in recordings]
     else:
+        log.info("Processing %d recordings with %d worker(s)", len(recordings), jobs)
         summaries = [None] * len(recordings)
         with ProcessPoolExecutor(max_workers=jobs, mp_context=get_context("spawn"),
                                  initializer=_limit_threads) as pool:
@@ -116,6 +129,49 @@ def run_study(study, *, jobs=1, force=False):
             log.warning("failed: %s", s["error"])
     write_group_outputs(study, recordings, summaries)
     return summaries
+
+
+CONNECT_TIMEOUT = "20s"  # how long to wait for a Dask scheduler
+
+
+def _task(study, recording, force):
+    """One recording on a Dask worker: one BLAS thread, as in the local pool."""
+    _limit_threads()
+    return process_and_write(study, recording, force)
+
+
+def _run_on_dask(study, recordings, force, cluster, jobs):
+    """Submit one task per recording to a Dask cluster; summaries in discovery order."""
+    from .errors import InputDataError, problem
+
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError:
+        raise InputDataError(problem("cluster", "Dask runs need the distributed package, which is not installed",
+                                     'install it with pip install "heschl[dask]"')) from None
+    own = None
+    if isinstance(cluster, Client):
+        client = cluster
+    elif cluster == "local":
+        own = LocalCluster(n_workers=jobs, threads_per_worker=1, processes=True, dashboard_address=None)
+        client = Client(own)
+    else:
+        try:
+            client = Client(str(cluster), timeout=CONNECT_TIMEOUT)
+        except (OSError, TimeoutError, ValueError) as exc:
+            raise InputDataError(problem("cluster", f'cannot reach the Dask scheduler at "{cluster}" '
+                                         f"({exc.__class__.__name__})",
+                                         "start the scheduler and workers, or check the address")) from None
+    try:
+        log.info("Processing %d recordings on Dask (%s)", len(recordings), client.scheduler.address)
+        # pure=False: a task's result depends on files, not only on its arguments.
+        futures = client.map(_task, [study] * len(recordings), recordings, [force] * len(recordings), pure=False)
+        return client.gather(futures)
+    finally:
+        if client is not cluster:
+            client.close()
+        if own is not None:
+            own.close()
 
 
 def write_group_outputs(study, recordings, summaries):

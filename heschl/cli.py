@@ -33,13 +33,13 @@ def run_check(study_path):
     return study, check_study(study)
 
 
-def run_run(study_path, jobs=1, force=False):
+def run_run(study_path, jobs=1, force=False, cluster=None):
     """Process a study; returns (study, summaries)."""
     from .batch import run_study
     from .config import load_study
 
     study = load_study(study_path)
-    return study, run_study(study, jobs=jobs, force=force)
+    return study, run_study(study, jobs=jobs, force=force, cluster=cluster)
 
 
 def run_demo(folder, size="demo", jobs=None, force=False):
@@ -79,7 +79,7 @@ def _print_run(study, summaries):
         print(f"  failed: {s['error']}")
     print(f"Outputs: {os.path.relpath(study.output)}")
     print(f"Study page: {os.path.relpath(study.output / 'group' / 'report.html')}")
-    print(f"Recording pages: {os.path.relpath(study.output)}/sub-*/eeg/*_report.html")
+    print(f"Recording pages: {os.path.relpath(study.output)}/sub-*/<eeg or meg>/*_report.html")
     return 1 if failed or not summaries else 0
 
 
@@ -106,6 +106,9 @@ def _parser():
     run.add_argument("study", help="the study .toml file")
     run.add_argument("--jobs", type=int, default=1, help="worker processes (default: 1; -1 for all cores)")
     run.add_argument("--force", action="store_true", help="reprocess recordings that are up to date")
+    run.add_argument("--cluster", metavar="ADDRESS", default=None,
+                     help='run on Dask: a scheduler address (tcp://host:8786) or "local" for --jobs workers '
+                     'on this machine; needs pip install "heschl[dask]" and paths every worker can see')
     return parser
 
 
@@ -135,7 +138,7 @@ def main(argv=None):
             _, rows = run_check(args.study)
             return _print_check(rows)
         if args.command == "run":
-            study, summaries = run_run(args.study, jobs=args.jobs, force=args.force)
+            study, summaries = run_run(args.study, jobs=args.jobs, force=args.force, cluster=args.cluster)
         else:
             study, summaries = run_demo(args.folder, size=args.size, jobs=args.jobs, force=args.force)
         return _print_run(study, summaries)

@@ -193,7 +193,7 @@ def process_recording(study, recording, hashes=None):
     arrays = _arrays(analysis, source, recording, key, definitions)
     clock.lap("arrays")
     counts = _counts(entries, paradigm)
-    snr = _snr(source, paradigm)
+    snr = _snr(source, paradigm, analysis)
     qc = _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr)
     qc["mastoid_inversion"] = _mastoid_inversion(analysis, source)
     qc["flags"].extend(_inversion_flags(qc["mastoid_inversion"], cleaning["reference"]))
@@ -443,11 +443,13 @@ def _inversion_flags(inversion, reference):
             for signal, v in inversion.items() if not v["inverted"]]
 
 
-def _snr(source, paradigm):
-    """Plus-minus SNR of each condition average over all channels, after the marker.
+def _snr(source, paradigm, analysis=None):
+    """Plus-minus SNR of each condition average, after the marker.
 
-    Pooled within one sensor type (V and T cannot be summed); with several types the
-    key is "<condition> (<TYPE>)".
+    Pooled over the channels of the feature sets' regions, where a response is measured
+    (all channels when there are no regions), and within one sensor type: V and T cannot
+    be summed, and most of an MEG helmet sees little of an auditory source. With several
+    types the key is "<condition> (<TYPE>)".
     """
     from .numeric.erp import plus_minus_snr
     from .sensors import by_type
@@ -455,11 +457,13 @@ def _snr(source, paradigm):
     if paradigm.epochs is None:
         return {}
     window = (0.0, float(source.times[-1]))
+    wanted = {c for fs in (analysis.feature_sets if analysis else ()) for names in fs.regions.values() for c in names}
     groups = by_type(source.ch_types)
     out = {}
     for c, trials in source.data.items():
         for kind, idx in groups.items():
-            value = float(plus_minus_snr(trials[:, idx], source.times, window, pooled=True))
+            inside = [i for i in idx if source.ch_names[i] in wanted] or idx
+            value = float(plus_minus_snr(trials[:, inside], source.times, window, pooled=True))
             out[c if len(groups) == 1 else f"{c} ({kind.upper()})"] = value if np.isfinite(value) else None
     return out
 

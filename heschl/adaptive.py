@@ -11,7 +11,9 @@ analysis data. An epoch whose interpolated channels form a group of neighbours l
 than ``max_cluster`` is dropped too: a patch of scalp reconstructed from its rim is a
 guess, not a measurement.
 
-Arrays are in V inside; thresholds are reported in uV for people.
+EEG, magnetometers and gradiometers are judged per sensor type (autoreject learns
+thresholds, interpolation counts and consensus for each type). Arrays are in SI units
+inside (V, T, T/m); thresholds are reported in uV, fT and fT/cm for people.
 """
 from __future__ import annotations
 
@@ -61,7 +63,7 @@ def interpolation_candidates(n_channels):
     Parameters
     ----------
     n_channels : int
-        Number of EEG channels.
+        Number of channels of the (smallest) sensor type.
 
     Returns
     -------
@@ -70,7 +72,7 @@ def interpolation_candidates(n_channels):
     """
     if isinstance(n_channels, bool) or not isinstance(n_channels, (int, np.integer)) or n_channels < 1:
         raise InputDataError(problem("interpolation_candidates", f"n_channels = {n_channels!r}",
-                                     "pass the number of EEG channels, a positive integer",
+                                     "pass the number of channels, a positive integer",
                                      key="n_channels"))
     top = int(n_channels) // 4
     if top < 1:
@@ -154,7 +156,7 @@ def _type_adjacency(info, idx, pos, kind):
 
 
 def channel_adjacency(info):
-    """Which EEG channels are neighbours on the scalp.
+    """Which channels are neighbours (on the scalp, or on the MEG helmet), within each sensor type.
 
     From ``mne.channels.find_ch_adjacency(info, "eeg")`` (for EEG, a Delaunay
     triangulation of the positions). If that fails (e.g. positions on one
@@ -164,7 +166,7 @@ def channel_adjacency(info):
     Parameters
     ----------
     info : mne.Info
-        EEG channels only, with positions (a montage set).
+        Data channels (EEG, magnetometers, gradiometers) with positions.
 
     Returns
     -------
@@ -415,8 +417,8 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
         The same trials cut from a copy high-passed at 1 Hz; thresholds, interpolations
         and drops are learnt on these. Not modified.
     info : mne.Info
-        The EEG channels of the arrays, in their order, with positions. ``info["bads"]``
-        is ignored: every channel is judged.
+        The data channels of the arrays (EEG, magnetometers, gradiometers), in their
+        order, with positions. ``info["bads"]`` is ignored: every channel is judged.
     max_cluster : int, default=3
         An epoch whose largest group of neighbouring interpolated channels is larger is
         dropped.
@@ -436,7 +438,9 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
     reasons : list of (str or None), length n_epochs
         None for kept epochs, else ``"adaptive: ..."``.
     record : dict
-        ``thresholds_uv`` (channel -> uV), ``n_interpolate``, ``consensus``,
+        ``thresholds_uv`` / ``thresholds_ft`` / ``thresholds_ft_per_cm`` (channel -> limit,
+        one key per sensor type present), ``n_interpolate`` and ``consensus`` (sensor type
+        -> value), ``adjacency`` (sensor type -> how neighbours were found),
         ``n_interpolate_candidates``, ``consensus_candidates``, ``cv_folds``,
         ``max_cluster``, ``adjacency``, ``n_epochs``, ``n_kept``, ``n_dropped``,
         ``n_dropped_consensus``, ``n_dropped_cluster``, ``n_epochs_interpolated``,

@@ -3,7 +3,10 @@
 :func:`model_arrays` turns a :class:`heschl.features.Source` into one
 :class:`xarray.Dataset` per kind of array; :func:`write_netcdf` writes one to a NetCDF-4
 file through a temporary name. Values are SI. Every numeric variable and coordinate
-carries a ``units`` attribute ("V", "V^2", "s", "Hz", "V^2/Hz" or "1"); text labels
+carries a ``units`` attribute ("V", "V^2", "s", "Hz", "V^2/Hz" or "1" for EEG; T and T/m
+in place of V for magnetometers and gradiometers, named per channel by the
+``channel_type`` coordinate; a cross-spectrum between two types is in the product of
+their units per Hz); text labels
 (``signal``, ``channel``, ``channel_to``, ``signal_kind``) carry a ``long_name`` instead,
 since a unit of a name means nothing and unit-aware readers would try to parse it.
 Dataset attributes hold the caller's provenance, flattened to text and numbers.

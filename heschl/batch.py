@@ -123,7 +123,8 @@ def run_study(study, *, jobs=1, force=False, cluster=None):
                                  initializer=_limit_threads) as pool:
             futures = {pool.submit(process_and_write, study, r, force): i for i, r in enumerate(recordings)}
             for future in as_completed(futures):
-                summaries[futures[future]] = future.result()
+                i = futures[future]
+                summaries[i] = _outcome(future, recordings[i])
     for s in summaries:
         if s["status"] == "failed":
             log.warning("failed: %s", s["error"])
@@ -132,6 +133,17 @@ def run_study(study, *, jobs=1, force=False, cluster=None):
 
 
 CONNECT_TIMEOUT = "20s"  # how long to wait for a Dask scheduler
+
+
+def _outcome(future, recording):
+    """A finished task's summary; a task whose worker died becomes a failed summary."""
+    try:
+        return future.result()
+    except Exception as exc:  # the worker process died (memory, signal) or the cluster went away
+        return {"site": recording.site, "participant_id": recording.participant_id,
+                "paradigm": recording.paradigm, "group": recording.group, "status": "failed",
+                "error": f"{recording.path.name}: the worker running it stopped ({exc.__class__.__name__}: "
+                         f"{str(exc).splitlines()[0] if str(exc) else ''})"}
 
 
 def _task(study, recording, force):
@@ -165,8 +177,10 @@ def _run_on_dask(study, recordings, force, cluster, jobs):
     try:
         log.info("Processing %d recordings on Dask (%s)", len(recordings), client.scheduler.address)
         # pure=False: a task's result depends on files, not only on its arguments.
-        futures = client.map(_task, [study] * len(recordings), recordings, [force] * len(recordings), pure=False)
-        return client.gather(futures)
+        shared = client.scatter(study, broadcast=True)  # sent once, not once per task
+        futures = client.map(_task, [shared] * len(recordings), recordings, [force] * len(recordings), pure=False)
+        # A lost worker fails its recording, not the run: every other summary is kept.
+        return [_outcome(f, r) for f, r in zip(futures, recordings)]
     finally:
         if client is not cluster:
             client.close()

@@ -10,7 +10,7 @@ import logging
 import numpy as np
 
 from .errors import InputDataError, problem
-from .sensors import DATA_TYPES, by_type, show, types_of
+from .sensors import DATA_TYPES, by_type, data_picks, show, types_of
 
 __all__ = ["BadChannelDetector", "filter_pass_band", "rereference", "clean"]
 
@@ -90,15 +90,19 @@ class BadChannelDetector:
         y = x - np.median(x, axis=0, keepdims=True)
         amp = _robust_amplitude(y)
         live = np.array([n not in bads for n in ch_names])
-        log_amp = np.log(np.maximum(amp, 1e-15))
-        centre = np.median(log_amp[live])
-        spread = 1.4826 * np.median(np.abs(log_amp[live] - centre)) or 1e-12
-        median = np.exp(centre)
-        for name, a, z in zip(ch_names, amp, (log_amp - centre) / spread):
-            if name not in bads and z > self.noisy_z and a > self.noisy_ratio * median:
+        pred = _predict(y, live)
+        # A noisy channel is large *and* unexplained by the others: a strong physiological
+        # rhythm (eyes-closed alpha at Oz) is large but its neighbours predict it.
+        unexplained = _robust_amplitude(y - pred)
+        z_amp, median = _robust_z(amp, live)
+        z_res, _ = _robust_z(unexplained, live)
+        self.unexplained_ = unexplained
+        for name, a, z, zr in zip(ch_names, amp, z_amp, z_res):
+            if name not in bads and z > self.noisy_z and a > self.noisy_ratio * median and zr > self.noisy_z:
                 bads[name] = (f"noisy: robust amplitude {show(a, self.kind)}, {a / median:.1f} x median "
-                              f"{show(median, self.kind)}, robust z {z:.1f} > {self.noisy_z:g}")
-        self.unpredictable_ = _unpredictable(y, live, int(round(self.window * sfreq)), self.min_correlation)
+                              f"{show(median, self.kind)}, robust z {z:.1f} > {self.noisy_z:g}, and not explained "
+                              f"by the other channels (robust z {zr:.1f})")
+        self.unpredictable_ = _unpredictable(y, pred, int(round(self.window * sfreq)), self.min_correlation)
         for name, frac in zip(ch_names, self.unpredictable_):
             if name not in bads and frac > self.max_unpredictable:
                 bads[name] = (f"unpredictable: in {frac:.0%} of 1 s windows its correlation with the other "
@@ -112,9 +116,17 @@ def _robust_amplitude(x):
     return 1.4826 * np.median(np.abs(x - med), axis=1)
 
 
-def _unpredictable(y, live, width, min_correlation):
-    """Fraction of windows where each channel correlates poorly with its prediction."""
-    n_ch, n_times = y.shape
+def _robust_z(values, live):
+    """Robust z of log values (median and MAD over the live channels), and the median value."""
+    logs = np.log(np.maximum(values, 1e-30))
+    centre = np.median(logs[live])
+    spread = 1.4826 * np.median(np.abs(logs[live] - centre)) or 1e-12
+    return (logs - centre) / spread, float(np.exp(centre))
+
+
+def _predict(y, live):
+    """Each channel's ridge least-squares prediction from the other live channels."""
+    n_ch = y.shape[0]
     cov = y[live] @ y[live].T
     idx = np.flatnonzero(live)
     pred = np.zeros_like(y)
@@ -125,6 +137,12 @@ def _unpredictable(y, live, width, min_correlation):
         b = y[others] @ y[i]
         ridge = 1e-3 * np.trace(a) / len(others) * np.eye(len(others))
         pred[i] = np.linalg.solve(a + ridge, b) @ y[others]
+    return pred
+
+
+def _unpredictable(y, pred, width, min_correlation):
+    """Fraction of windows where each channel correlates poorly with its prediction."""
+    n_ch, n_times = y.shape
     n_win = max(1, n_times // width)
     xs = y[:, :n_win * width].reshape(n_ch, n_win, -1)
     ps = pred[:, :n_win * width].reshape(n_ch, n_win, -1)
@@ -260,7 +278,7 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
         record["line_noise"] = remove_line_noise(raw, line_frequency, method=paradigm.cleaning.line_noise,
                                                  picks=[t for t in FILTERED if t in raw])
     record["filter"] = filter_pass_band(raw, paradigm.cleaning.pass_band)
-    picks = mne.pick_types(raw.info, eeg=True, meg=True, exclude=[])
+    picks = data_picks(raw.info)
     names = [raw.ch_names[i] for i in picks]
     groups = by_type(types_of(raw.info, picks))
     bads = {c: "marked bad in the study file" for c in forced_bads if c in names}

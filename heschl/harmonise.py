@@ -230,10 +230,13 @@ def _check_unique(names, mapping, where):
 
 
 def _set_types(raw, site):
+    """Type the site's EOG channels (and EOG-named ones) as EOG; return every EOG channel."""
+    import mne
+
     eog = [n for n in raw.ch_names if n in site.eog_channels or n.upper() in _EOG_WORDS]
     if eog:
         raw.set_channel_types({n: "eog" for n in eog}, verbose="error")
-    return eog
+    return [raw.ch_names[i] for i in mne.pick_types(raw.info, eog=True, exclude=[])]
 
 
 def _restore_reference(raw, site):
@@ -272,9 +275,14 @@ def _pick_common(raw, common, where):
 
 
 def _set_montage(raw, where):
+    """Template 10-05 positions for the EEG channels, unless the file has digitised ones."""
+    eeg_idx = _eeg_picks(raw)
+    locs = np.array([raw.info["chs"][i]["loc"][:3] for i in eeg_idx])
+    if len(locs) and np.all(np.isfinite(locs)) and not np.any(np.all(locs == 0.0, axis=1)):
+        return  # every EEG channel has a measured position: keep it
     montage = standard_montage()
     known = set(montage.ch_names)
-    eeg = [raw.ch_names[i] for i in _eeg_picks(raw)]
+    eeg = [raw.ch_names[i] for i in eeg_idx]
     unknown = [n for n in eeg if n not in known]
     if unknown:
         raise InputDataError(problem(where, f"no standard position for channels {', '.join(unknown[:6])}",

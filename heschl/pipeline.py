@@ -113,11 +113,17 @@ def input_hashes(recording):
     return out
 
 
+#: Bumped whenever a change of code changes what a recording's outputs are, so that
+#: resuming redoes recordings written by older code (the package version moves slower).
+PIPELINE_REVISION = 2
+
+
 def input_key(hashes, definitions):
     """One hash of everything that determines a recording's outputs."""
     import json
 
-    text = json.dumps({"inputs": hashes, "definitions": definitions, "heschl": __version__}, sort_keys=True)
+    text = json.dumps({"inputs": hashes, "definitions": definitions, "heschl": __version__,
+                       "revision": PIPELINE_REVISION}, sort_keys=True)
     return hashlib.sha256(text.encode()).hexdigest()
 
 
@@ -176,12 +182,15 @@ def process_recording(study, recording, hashes=None):
     raw = read_raw(recording.path)
     clock.lap("read")
     raw, markers, harmonised = harmonise(raw, site, paradigm, study.common_channels, where)
+    analysis, skipped_sets = applicable(analysis, harmonised["channels"], where,
+                                        set(harmonised["channel_types"].values()))
     clock.lap("harmonise")
     cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
                      restored=harmonised["restored_reference"], line_frequency=site.line_frequency)
     clock.lap("clean")
-    analysis, skipped_sets = applicable(analysis, harmonised["channels"], where)
-    trials_data, times, entries, ch_names, rejection = _trials(raw, markers, paradigm)
+    ocular = cleaning.get("ocular") or {}
+    corrected = ocular.get("method") not in (None, "none") and not ocular.get("skipped_reason")
+    trials_data, times, entries, ch_names, rejection = _trials(raw, markers, paradigm, corrected)
     clock.lap("segment and reject")
     source = _source(trials_data, times, ch_names, raw.info["sfreq"], paradigm,
                      [harmonised["channel_types"][c] for c in ch_names])
@@ -217,24 +226,43 @@ def process_recording(study, recording, hashes=None):
     return {"rows": rows, "qc": qc, "provenance": provenance, "curves": curves, "arrays": arrays}
 
 
-def applicable(analysis, channels, where):
-    """The analysis restricted to the feature sets whose region channels this recording has.
+def applicable(analysis, channels, where, types=None):
+    """The analysis restricted to the feature sets written for this recording's sensors.
 
-    A feature set whose region channels are all absent is for other recordings (an EEG
-    set on an MEG recording): it is left out, with the reason. One with some but not all
-    of them present is an error: a region would silently shrink.
+    A feature set whose regions name only 10-05 electrode positions is for EEG; any other
+    is for MEG (its regions name sensors of an MEG system). A set for a sensor modality the
+    recording lacks (an EEG set on an MEG recording) is left out, with the reason. A set
+    for a modality the recording has must find all of its region channels: a missing one
+    is an error, never a silently smaller region.
+
+    Parameters
+    ----------
+    analysis : heschl.config.Analysis
+    channels : list of str
+        The recording's data channels after harmonising.
+    where : str
+        The file, for messages.
+    types : set of str or None
+        Sensor types present ("eeg", "mag", "grad"); None means EEG only.
     """
     import dataclasses
 
+    from .harmonise import standard_name_map
+
+    types = {"eeg"} if types is None else set(types)
+    electrodes = set(standard_name_map().values())
     present, used, skipped = set(channels), [], {}
     for fs in analysis.feature_sets:
         wanted = {c for names in fs.regions.values() for c in names}
+        modality = "eeg" if wanted <= electrodes else "meg"
+        has = "eeg" in types if modality == "eeg" else bool(types & {"mag", "grad"})
         missing = sorted(wanted - present)
         if not missing:
             used.append(fs)
-        elif len(missing) == len(wanted):
-            skipped[fs.name] = (f"none of its {len(wanted)} region channels ({', '.join(sorted(wanted)[:4])}"
-                                f"{', ...' if len(wanted) > 4 else ''}) is in this recording")
+        elif not has:
+            skipped[fs.name] = (f"its regions name {modality.upper()} channels ({', '.join(sorted(wanted)[:4])}"
+                                f"{', ...' if len(wanted) > 4 else ''}) and this recording has no "
+                                f"{modality.upper()} channel")
         else:
             raise InputDataError(problem(where, f'lacks channels {", ".join(missing[:6])} of the regions of feature '
                                          f'set "{fs.name}"', "add channel_aliases for them in the study file or "
@@ -255,7 +283,7 @@ def _display(path):
         return str(path)
 
 
-def _trials(raw, markers, paradigm):
+def _trials(raw, markers, paradigm, corrected=False):
     from .segment import cut, epoch_plan, reject, segment_plan
 
     import mne
@@ -281,13 +309,16 @@ def _trials(raw, markers, paradigm):
         detection, _, _ = cut(copy, plan, window, picks)
         info = mne.pick_info(raw.info, picks)
     data, entries, record = reject(x, times, entries, ch_names, paradigm, baseline, detection, info, types)
-    record["kept_blinks"] = kept_blinks(raw, entries, window)
+    record["kept_blinks"] = kept_blinks(raw, entries, window) if corrected is False else None
     return data, times, entries, ch_names, record
 
 
-#: Blink detection on the vertical EOG: peaks of the 1-10 Hz band-passed EOG above this
-#: (mne's find_eog_events). Blinks reach 100-400 uV at a vertical EOG (common practice,
-#: from memory); eye-movement and brain signal stay well below 75 uV there.
+#: Blink detection on the vertical EOG: peaks of the 1-10 Hz band-passed EOG that stand
+#: this far above their surroundings (the ``thresh`` of mne's find_eog_events, a peak
+#: height, not an absolute level). Blinks reach 100-400 uV at a vertical EOG (common
+#: practice, from memory). Measured only when nothing corrected the blinks: after a
+#: correction they are meant to stay in the kept trials, and the residual EOG correlation
+#: judges the correction instead.
 BLINK_THRESHOLD_V = 75e-6
 _BLINK_MARGIN_S = 0.1  # a blink peaking this close outside a trial still reaches into it
 
@@ -535,6 +566,10 @@ def _ocular_flags(ocular, limits):
                           f"\"{ocular['policy']}\"). Check frontal channels of the averages for blink residue")]
         return []
     blinks = ocular["kept_blinks"]
+    if blinks is None and ocular["method"] in ("none", None):
+        return [_flag("note", "no-vertical-eog", f"EOG channels {', '.join(ocular['eog_channels'])}: none is named "
+                      "as the vertical one (VEOG), so blinks in kept trials were not counted; rename it VEOG with "
+                      "channel_aliases in the study file")]
     if blinks and blinks["fraction"] is not None and blinks["fraction"] > limits["max_blink_trials"]:
         return [_flag("caution", "blinks-in-kept-trials",
                       f"{blinks['kept_with_blink']} of {blinks['kept_trials']} kept trials hold a blink found on "

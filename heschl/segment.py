@@ -87,10 +87,12 @@ def cut(raw, plan, window, picks=None):
     entries : list of dict
         The log, one entry per planned trial, with ``index`` into ``x`` for cut trials.
     """
-    import mne
     from numpy.lib.stride_tricks import sliding_window_view
 
-    picks = mne.pick_types(raw.info, eeg=True, meg=True, exclude=[]) if picks is None else picks
+    if picks is None:
+        from .sensors import data_picks
+
+        picks = data_picks(raw.info)
     data = raw.get_data(picks=picks)
     sfreq = raw.info["sfreq"]
     start = int(round(window[0] * sfreq))

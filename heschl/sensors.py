@@ -25,10 +25,11 @@ _UNIT_TYPES = {
 
 
 def data_picks(info):
-    """Indices of the EEG, magnetometer and gradiometer channels (not EOG, not stimulus)."""
+    """Indices of the EEG, magnetometer and gradiometer channels (not EOG, not stimulus, not
+    the reference magnetometers of axial-gradiometer systems, which record no brain signal)."""
     import mne
 
-    return mne.pick_types(info, eeg=True, meg=True, exclude=[])
+    return mne.pick_types(info, eeg=True, meg=True, ref_meg=False, exclude=[])
 
 
 def types_of(info, picks=None):

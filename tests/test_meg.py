@@ -34,7 +34,7 @@ def test_meg_recording_runs_end_to_end_into_the_meg_folder(dogwood):
     assert qc["datatype"] == "meg" and qc["verdict"] != "unusable"
     assert set(qc["channels"]["by_type"]) == {"mag", "grad"}
     assert qc["feature_sets"]["used"] == ["oddball-meg"]
-    assert "oddball-core" in qc["feature_sets"]["not_applicable"]
+    assert qc["feature_sets"]["not_applicable"]["oddball-core"].endswith("this recording has no EEG channel")
     assert qc["reference"]["reference"].startswith("none: no EEG channels")
     # Plus-minus SNR pooled within each sensor type, never across V and T.
     assert {"standard (MAG)", "standard (GRAD)", "deviant (MAG)", "deviant (GRAD)"} == set(qc["snr"])
@@ -186,7 +186,7 @@ def test_an_meg_file_at_an_eeg_site_is_a_one_line_error(processed_study, tmp_pat
         harmonise(read_raw(recording.path), site, PARADIGM, study.common_channels, "x.fif")
 
 
-def test_feature_set_with_some_region_channels_missing_is_an_error():
+def test_feature_sets_apply_by_sensor_modality_and_missing_channels_are_errors():
     import dataclasses
 
     from heschl.config import Analysis, FeatureSet
@@ -194,11 +194,14 @@ def test_feature_set_with_some_region_channels_missing_is_an_error():
 
     fs = FeatureSet("mixed", "oddball", "", "mixed.toml", {"r": ("Fz", "MEG0111")}, {}, {}, ())
     with pytest.raises(InputDataError, match=r'x.fif: lacks channels MEG0111 of the regions of feature set "mixed"'):
-        applicable(Analysis(PARADIGM, (fs,)), ["Fz", "Cz"], "x.fif")
-    eeg = dataclasses.replace(fs, name="eeg", regions={"r": ("Fz",)})
+        applicable(Analysis(PARADIGM, (fs,)), ["Fz", "Cz", "MEG0112"], "x.fif", {"eeg", "grad"})
+    eeg = dataclasses.replace(fs, name="eeg", regions={"r": ("Fz", "Cz")})
     meg = dataclasses.replace(fs, name="meg", regions={"r": ("MEG0111",)})
-    used, skipped = applicable(Analysis(PARADIGM, (eeg, meg)), ["Fz", "Cz"], "x.fif")
+    used, skipped = applicable(Analysis(PARADIGM, (eeg, meg)), ["Fz", "Cz"], "x.fif", {"eeg"})
     assert [f.name for f in used.feature_sets] == ["eeg"] and list(skipped) == ["meg"]
-    assert "none of its 1 region channels (MEG0111) is in this recording" in skipped["meg"]
+    assert skipped["meg"] == "its regions name MEG channels (MEG0111) and this recording has no MEG channel"
+    # An EEG set on an EEG recording that lacks all its channels is an error, not a skip.
+    with pytest.raises(InputDataError, match=r'lacks channels Cz, Fz of the regions of feature set "eeg"'):
+        applicable(Analysis(PARADIGM, (eeg, meg)), ["Pz"], "x.fif", {"eeg"})
     with pytest.raises(InputDataError, match=r'no feature set of paradigm "oddball" reads its channels'):
-        applicable(Analysis(PARADIGM, (meg,)), ["Fz"], "x.fif")
+        applicable(Analysis(PARADIGM, (meg,)), ["Fz"], "x.fif", {"eeg"})

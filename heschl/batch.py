@@ -121,7 +121,10 @@ def run_study(study, *, jobs=1, force=False, cluster=None):
         summaries = [None] * len(recordings)
         with ProcessPoolExecutor(max_workers=jobs, mp_context=get_context("spawn"),
                                  initializer=_limit_threads) as pool:
-            futures = {pool.submit(process_and_write, study, r, force): i for i, r in enumerate(recordings)}
+            # Largest files first (longest-processing-time first): the longest task does not
+            # start last and leave one worker idle at the end.
+            order = sorted(range(len(recordings)), key=lambda i: -_size(recordings[i]))
+            futures = {pool.submit(process_and_write, study, recordings[i], force): i for i in order}
             for future in as_completed(futures):
                 i = futures[future]
                 summaries[i] = _outcome(future, recordings[i])
@@ -133,6 +136,16 @@ def run_study(study, *, jobs=1, force=False, cluster=None):
 
 
 CONNECT_TIMEOUT = "20s"  # how long to wait for a Dask scheduler
+
+
+def _size(recording):
+    """Bytes of a recording's input files (0 when unreadable: the task will say why)."""
+    from .pipeline import recording_files
+
+    try:
+        return sum(f.stat().st_size for f in recording_files(recording.path) if f.exists())
+    except OSError:
+        return 0
 
 
 def _outcome(future, recording):

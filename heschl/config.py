@@ -40,7 +40,8 @@ LINE_NOISE_METHODS = ("notch", "fit", "none")
 OCULAR_METHODS = ("auto", "regression", "ica", "none")
 BAD_CHANNEL_POLICIES = ("detect", "keep")
 POLARITIES = ("negative", "positive")
-BAND_CLOSURES = ("left", "right", "both", "neither")  # which band edges belong to the band
+BAND_CLOSURES = ("left", "right", "both", "neither")
+COMBINES = ("mean", "rms")  # how a waveform measure joins its region's channels  # which band edges belong to the band
 
 # Parameters of every measure kind: (required keys, optional keys, default unit, allowed units).
 # heschl.features.MEASURES holds the functions; a test keeps the two in step.
@@ -49,15 +50,16 @@ BAND_CLOSURES = ("left", "right", "both", "neither")  # which band edges belong 
 _AMPLITUDE_UNITS = ("uV", "V", "fT", "T", "fT/cm", "T/m")
 _POWER_UNITS = ("uV^2", "V^2", "fT^2", "T^2", "(fT/cm)^2", "(T/m)^2")
 MEASURE_KINDS = {
-    "mean-amplitude": ({"signal", "region", "window"}, set(), "uV", _AMPLITUDE_UNITS),
-    "peak-amplitude": ({"signal", "region", "window", "polarity"}, set(), "uV", _AMPLITUDE_UNITS),
-    "peak-latency": ({"signal", "region", "window", "polarity"}, set(), "ms", ("ms", "s")),
+    "mean-amplitude": ({"signal", "region", "window"}, {"combine"}, "uV", _AMPLITUDE_UNITS),
+    "peak-amplitude": ({"signal", "region", "window", "polarity"}, {"combine"}, "uV", _AMPLITUDE_UNITS),
+    "peak-latency": ({"signal", "region", "window", "polarity"}, {"combine"}, "ms", ("ms", "s")),
     "itpc": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
     "evoked-power": ({"signal", "region", "frequency", "window"}, set(), "uV^2", _POWER_UNITS),
     "band-power": ({"signal", "region", "band"}, set(), "uV^2", _POWER_UNITS),
     "relative-band-power": ({"signal", "region", "band", "relative_to"}, set(), "1", ("1",)),
     "band-ratio": ({"numerator", "denominator", "region", "band"}, set(), "1", ("1",)),
-    "fractional-area-latency": ({"signal", "region", "window", "polarity"}, {"fraction"}, "ms", ("ms", "s")),
+    "fractional-area-latency": ({"signal", "region", "window", "polarity"}, {"fraction", "combine"}, "ms",
+                                ("ms", "s")),
     "induced-power": ({"signal", "region", "frequency", "window"}, set(), "uV^2", _POWER_UNITS),
     "ppc": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
     "rayleigh-p": ({"signal", "region", "frequency", "window"}, set(), "1", ("1",)),
@@ -573,7 +575,7 @@ def _stimulation(top, cleaning):
 # --------------------------------------------------------------------------- feature set
 _FEATURE_KEYS = {"name", "paradigm", "summary", "regions", "bands", "spectrum", "measures", "reliability"}
 _MEASURE_KEYS = {"name", "kind", "signal", "region", "window", "frequency", "band", "polarity",
-                 "numerator", "denominator", "relative_to", "unit", "fraction", "per_channel"}
+                 "numerator", "denominator", "relative_to", "unit", "fraction", "per_channel", "combine"}
 
 
 def load_feature_set(path, paradigm):
@@ -644,6 +646,11 @@ def _expand_measure(section, paradigm, regions, bands, spec, closures=None):
         fixed["polarity"] = section.string("polarity", choices=POLARITIES)
     if "fraction" in optional:
         fixed["fraction"] = section.number("fraction", default=0.5, low=0.0, high=1.0, strict_low=True)
+    if "combine" in optional:
+        fixed["combine"] = section.string("combine", default="mean", choices=COMBINES)
+        if fixed["combine"] == "rms" and fixed.get("polarity") == "negative":
+            section.fail("polarity", 'a root mean square over channels is never negative',
+                         'use polarity = "positive" with combine = "rms"')
     region = fixed["region"] = section.string("region")
     if region not in regions:
         section.fail("region", f'"{region}" is not defined under [regions]{did_you_mean(region, regions)}',

@@ -131,15 +131,27 @@ def _region(source, regions, name, x):
     return region_mean(x, source.ch_names, regions[name])
 
 
+def _region_wave(m, source, regions):
+    """The measure's waveform over its region: the channel mean, or with ``combine = "rms"``
+    the root mean square over the channels at each time (polarity-free; for planar
+    gradiometers, whose sign depends on their orientation to the source)."""
+    p = m.params
+    wave = source.average(p["signal"])
+    if p.get("combine", "mean") == "rms":
+        picks = [source.ch_names.index(c) for c in regions[p["region"]]]
+        return np.sqrt(np.mean(wave[picks] ** 2, axis=0))
+    return _region(source, regions, p["region"], wave)
+
+
 def _mean_amplitude(m, source, regions, bands):
     p = m.params
-    wave = _region(source, regions, p["region"], source.average(p["signal"]))
+    wave = _region_wave(m, source, regions)
     return float(mean_amplitude(wave, source.times, p["window"]))
 
 
 def _peak(m, source, regions):
     p = m.params
-    wave = _region(source, regions, p["region"], source.average(p["signal"]))
+    wave = _region_wave(m, source, regions)
     result = peak(wave, source.times, p["window"], polarity=p["polarity"])
     return result[0], result[1]
 
@@ -193,7 +205,7 @@ def _band_ratio(m, source, regions, bands):
 
 def _fractional_area_latency(m, source, regions, bands):
     p = m.params
-    wave = _region(source, regions, p["region"], source.average(p["signal"]))
+    wave = _region_wave(m, source, regions)
     return float(fractional_area_latency(wave, source.times, p["window"], p["polarity"], p.get("fraction", 0.5)))
 
 
@@ -358,7 +370,9 @@ def _reliability_columns(m, value, boot, odd, even, halves, settings):
     diff = halves[:, 0] - halves[:, 1]
     diff = diff[np.isfinite(diff)]
     reliability = float("nan")
-    if m.kind not in NO_ZERO_KINDS and diff.size and np.isfinite(value):
+    # An RMS over channels is positive even for pure noise: "apart from zero" means nothing.
+    no_zero = m.kind in NO_ZERO_KINDS or m.params.get("combine") == "rms"
+    if not no_zero and diff.size and np.isfinite(value):
         se_split = float(np.sqrt(np.mean(diff ** 2)) / 2)
         t = max(value ** 2 - se_split ** 2, 0.0)
         reliability = t / (t + se_split ** 2) if t + se_split ** 2 > 0 else float("nan")

@@ -174,7 +174,12 @@ class OcularCorrection:
                                else list(self.sources_))
         self.measured_channels_ = [n for n in eeg if n not in self.sources_]
         if not self.measured_channels_:
-            self.skipped_reason_ = "no EEG channel besides the EOG sources"
+            import mne
+
+            meg = len(mne.pick_types(raw.info, meg=True, eeg=False))
+            self.skipped_reason_ = ("ocular correction covers EEG channels and this recording has only MEG sensors; "
+                                    "blinks are left to epoch rejection" if meg else
+                                    "no EEG channel besides the EOG sources")
             log.info("Ocular correction skipped: %s", self.skipped_reason_)
             return self
         self.corrected_channels_ = list(eeg if self.method == "ica" else self.measured_channels_)

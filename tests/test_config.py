@@ -421,7 +421,7 @@ INVALID = {
     "features-key-not-used-by-kind": (
         "features", "tones", TONES_FEATURES + "frequency = 10.0\n",
         "measures[0].frequency", ['is not used by kind "mean-amplitude"'],
-        'remove it; kind "mean-amplitude" takes region, signal, window'),
+        'remove it; kind "mean-amplitude" takes combine, region, signal, window'),
     "features-missing-measure-key": (
         "features", "tones", _edit(TONES_FEATURES, "window = [0.1, 0.25]\n", ""),
         "measures[0].window", ["missing required key"], 'add "window = ..." to the file'),

@@ -205,3 +205,45 @@ def test_feature_sets_apply_by_sensor_modality_and_missing_channels_are_errors()
         applicable(Analysis(PARADIGM, (eeg, meg)), ["Pz"], "x.fif", {"eeg"})
     with pytest.raises(InputDataError, match=r'no feature set of paradigm "oddball" reads its channels'):
         applicable(Analysis(PARADIGM, (meg,)), ["Fz"], "x.fif", {"eeg"})
+
+
+def test_rms_combine_is_polarity_free_and_the_mean_cancels():
+    # Definition (root mean square): two channels at +a and -a give a mean of 0 and an RMS of a.
+    import dataclasses
+
+    from heschl.features import MEASURES
+
+    source = _source(["grad", "grad"])
+    wave = np.zeros((2, 10))
+    wave[0, 3:6], wave[1, 3:6] = 20e-13, -20e-13
+    source.data["deviant"][:] = wave
+    measure = next(m for m in load_feature_set(
+        __import__("heschl.config", fromlist=["builtin_dir"]).builtin_dir("features") / "oddball-meg.toml",
+        PARADIGM).measures if m.name == "mismatch_gradient_rms_left")
+    regions = {"pair": ("S0", "S1")}
+    window = (0.0, 0.036)
+    rms = dataclasses.replace(measure, params=dict(measure.params, region="pair", window=window))
+    mean = dataclasses.replace(rms, params=dict(rms.params, combine="mean"))
+    assert MEASURES["mean-amplitude"](mean, source, regions, {}) == pytest.approx(0.0)
+    expected = 20e-13 * 3 / 10  # RMS is 20e-13 on 3 of the 10 samples in the window
+    assert MEASURES["mean-amplitude"](rms, source, regions, {}) == pytest.approx(expected)
+
+
+def test_rms_with_negative_polarity_is_refused(tmp_path):
+    path = tmp_path / "rms.toml"
+    path.write_text("""name = "rms"
+paradigm = "oddball"
+[regions]
+pair = ["S0", "S1"]
+[[measures]]
+name = "p"
+kind = "peak-amplitude"
+signal = "mismatch"
+region = "pair"
+window = [0.1, 0.2]
+polarity = "negative"
+combine = "rms"
+""")
+    with pytest.raises(DefinitionError, match=r'measures\[0\].polarity: a root mean square over channels is never '
+                                              r'negative; use polarity = "positive" with combine = "rms"'):
+        load_feature_set(path, PARADIGM)

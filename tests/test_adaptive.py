@@ -127,7 +127,7 @@ def test_interpolation_candidates_never_exceed_a_quarter():
 
 
 def test_interpolation_candidates_reject_a_non_count():
-    with pytest.raises(InputDataError, match=r"n_channels = 0; pass the number of EEG channels"):
+    with pytest.raises(InputDataError, match=r"n_channels = 0; pass the number of channels, a positive integer"):
         interpolation_candidates(0)
 
 

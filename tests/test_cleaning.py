@@ -105,3 +105,23 @@ def test_equalise_keeps_evenly_spaced_trials_and_logs_why():
     assert len(dropped) == 18 and all(e["reason"] == "equalised: standard reduced to 6 trials" for e in dropped)
     kept_std = [e["index"] for e in entries if e["kept"] and e["condition"] == "standard"]
     assert kept_std[0] == 1 and kept_std[-1] == 29  # spread over the whole recording
+
+
+def test_blinks_are_found_once_each_on_their_own_side_despite_a_saturation():
+    # A blink is a 100-400 uV deflection of the vertical EOG lasting a few hundred ms
+    # (common practice, from memory). Here they go negative; one larger positive
+    # saturation must not make the detector take the blinks' side lobes for blinks.
+    from heschl.pipeline import blink_peaks
+
+    t = np.arange(int(60 * SFREQ)) / SFREQ
+    peaks = np.arange(3.0, 57.0, 4.5)
+    eog = -sum(150e-6 * np.exp(-0.5 * ((t - p) / 0.07) ** 2) for p in peaks)
+    eog = eog + np.random.default_rng(7).normal(0, 2e-6, t.size)
+    eog[(t > 32.0) & (t < 32.2)] = 1.5e-3  # a short amplifier saturation
+    found = blink_peaks(eog, SFREQ)
+    nearest = np.array([np.min(np.abs(found - p)) for p in peaks])
+    assert np.all(nearest < 0.03)  # every blink, at its peak (not at its side lobes)
+    extra = [f for f in found if np.min(np.abs(peaks - f)) >= 0.03]
+    # The saturation's own filter ringing may add deflections next to it, never elsewhere;
+    # trials there are dropped by rejection anyway.
+    assert len(extra) <= 3 and all(abs(f - 32.1) < 0.6 for f in extra)

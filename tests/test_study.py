@@ -382,6 +382,6 @@ def test_recordings_without_eog_carry_a_flag_and_those_with_eog_count_kept_blink
             t = next(t for t in truth["recordings"] if t["participant_id"] == recording.participant_id
                      and t["paradigm"] == recording.paradigm)
             if recording.paradigm == "oddball":
-                # Most injected blinks are found (threshold 75 uV on the 1-10 Hz EOG).
-                assert blinks["blinks"] >= 0.6 * len(t["blinks_s"])
+                # The injected blinks are found, each once (threshold 75 uV on the 1-10 Hz EOG).
+                assert 0.9 * len(t["blinks_s"]) <= blinks["blinks"] <= 1.3 * len(t["blinks_s"])
                 assert blinks["fraction"] <= 0.1

@@ -115,7 +115,7 @@ def input_hashes(recording):
 
 #: Bumped whenever a change of code changes what a recording's outputs are, so that
 #: resuming redoes recordings written by older code (the package version moves slower).
-PIPELINE_REVISION = 2
+PIPELINE_REVISION = 3
 
 
 def input_key(hashes, definitions):

@@ -23,6 +23,7 @@ import math
 import numpy as np
 
 from .errors import InputDataError, problem
+from .sensors import DISPLAY
 
 __all__ = ["interpolation_candidates", "channel_adjacency", "interpolated_clusters",
            "adaptive_reject", "CONSENSUS_CANDIDATES", "MIN_EPOCHS"]
@@ -372,9 +373,8 @@ def _fit(detection, info, folds, random_state, n_jobs):
     return model, reject_log, candidates
 
 
-# Threshold record key and factor from SI per sensor type (uV, fT, fT/cm).
-_THRESHOLD_KEYS = {"eeg": ("thresholds_uv", 1e6), "mag": ("thresholds_ft", 1e15),
-                   "grad": ("thresholds_ft_per_cm", 1e13)}
+# Threshold record key per sensor type; values in the type's display unit (uV, fT, fT/cm).
+_THRESHOLD_KEYS = {"eeg": "thresholds_uv", "mag": "thresholds_ft", "grad": "thresholds_ft_per_cm"}
 
 
 def _record(model, names, types, candidates, folds, max_cluster, source, keep, by_consensus, interp, clusters):
@@ -382,7 +382,7 @@ def _record(model, names, types, candidates, folds, max_cluster, source, keep, b
     sizes, counts = np.unique(clusters[~by_consensus], return_counts=True)
     thresholds = {}
     for kind in dict.fromkeys(types):
-        key, factor = _THRESHOLD_KEYS[kind]
+        key, factor = _THRESHOLD_KEYS[kind], DISPLAY[kind][1]
         thresholds[key] = {n: float(model.threshes_[n]) * factor for n, t in zip(names, types) if t == kind}
     return {
         **thresholds,

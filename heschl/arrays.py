@@ -43,6 +43,7 @@ from .features import N_CYCLES
 from .numeric.crossspectra import cross_spectra
 from .numeric.phase import evoked_power, itpc
 from .numeric.spectra import welch_psd
+from .sensors import SI
 
 __all__ = ["ARRAY_SUFFIXES", "flat_attributes", "model_arrays", "write_netcdf"]
 
@@ -246,9 +247,6 @@ def _label(dim, values):
     return (dim, np.array(values, dtype=object), {"long_name": _LABELS[dim]})
 
 
-_SI = {"eeg": "V", "mag": "T", "grad": "T/m"}  # SI unit of each sensor type's data
-
-
 def _channel_coords(names, source=None, picks=None):
     coords = {"channel": _label("channel", names)}
     if source is not None:
@@ -264,7 +262,7 @@ def _unit(source, picks, power=""):
     if len(types) != 1:
         return {"": "V, T or T/m by channel_type", "^2": "V^2, T^2 or (T/m)^2 by channel_type",
                 "^2/Hz": "V^2/Hz, T^2/Hz or (T/m)^2/Hz by channel_type"}[power]
-    base = _SI[types.pop()]
+    base = SI[types.pop()]
     if not power:
         return base
     return (f"({base})" if "/" in base else base) + power

@@ -8,10 +8,13 @@ each is shown in.
 """
 from __future__ import annotations
 
-__all__ = ["DATA_TYPES", "DISPLAY", "data_picks", "types_of", "by_type", "show", "unit_type"]
+__all__ = ["DATA_TYPES", "DISPLAY", "SI", "data_picks", "types_of", "by_type", "show", "unit_type"]
 
 #: Channel types that carry brain signal, in the order stages report them.
 DATA_TYPES = ("eeg", "mag", "grad")
+
+#: Type -> SI unit of its data inside heschl.
+SI = {"eeg": "V", "mag": "T", "grad": "T/m"}
 
 #: Type -> (unit shown to people, factor from the SI value to it).
 DISPLAY = {"eeg": ("uV", 1e6), "mag": ("fT", 1e15), "grad": ("fT/cm", 1e13)}

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from heschl.adaptive import _distance_adjacency
-from heschl.config import load_feature_set, load_paradigm
+from heschl.config import builtin_dir, load_feature_set, load_paradigm
 from heschl.errors import DefinitionError, InputDataError
 from heschl.features import Source, check_units
 from heschl.outputs import recording_paths
@@ -93,8 +93,7 @@ def test_meg_waveforms_carry_si_units_per_channel_type(dogwood):
 
 # --- units, thresholds and definitions per sensor type ------------------------------------
 
-PARADIGM = load_paradigm(__import__("heschl.config", fromlist=["builtin_dir"]).builtin_dir("paradigms")
-                         / "oddball.toml")
+PARADIGM = load_paradigm(builtin_dir("paradigms") / "oddball.toml")
 
 
 def _source(types):
@@ -149,8 +148,6 @@ def test_fixed_limits_are_per_sensor_type():
 
 
 def test_meg_limits_are_read_from_the_paradigm(tmp_path):
-    from heschl.config import builtin_dir
-
     text = (builtin_dir("paradigms") / "clicktrain.toml").read_text()
     path = tmp_path / "p.toml"
     path.write_text(text.replace("[rejection]", "[rejection]\npeak_to_peak_ft = 3000.0", 1))
@@ -217,9 +214,8 @@ def test_rms_combine_is_polarity_free_and_the_mean_cancels():
     wave = np.zeros((2, 10))
     wave[0, 3:6], wave[1, 3:6] = 20e-13, -20e-13
     source.data["deviant"][:] = wave
-    measure = next(m for m in load_feature_set(
-        __import__("heschl.config", fromlist=["builtin_dir"]).builtin_dir("features") / "oddball-meg.toml",
-        PARADIGM).measures if m.name == "mismatch_gradient_rms_left")
+    measure = next(m for m in load_feature_set(builtin_dir("features") / "oddball-meg.toml", PARADIGM).measures
+                   if m.name == "mismatch_gradient_rms_left")
     regions = {"pair": ("S0", "S1")}
     window = (0.0, 0.036)
     rms = dataclasses.replace(measure, params=dict(measure.params, region="pair", window=window))

@@ -16,7 +16,7 @@ import pytest
 import scipy.signal
 
 from heschl.synth import MEG_SITES, events, meg, write_recording
-from heschl.synth.artefacts import _blink_kernel
+from heschl.synth.artefacts import blink_course
 from heschl.synth.study import study_toml_text
 
 try:
@@ -80,18 +80,6 @@ def _strongest(kind, n=6):
     field = np.abs(meg.auditory_field())
     rows = np.flatnonzero(KINDS == kind)
     return rows[np.argsort(-field[rows], kind="stable")[:n]]
-
-
-def _blink_course(blinks_s, n_times, sfreq):
-    """Unit blink course at the truth's blink peaks (the generator's own blink shape)."""
-    kernel = _blink_kernel(sfreq)
-    course = np.zeros(n_times)
-    for peak in blinks_s:
-        start = int(round((peak - 0.3) * sfreq))
-        lo, hi = max(start, 0), min(start + kernel.size, n_times)
-        if hi > lo:
-            course[lo:hi] += kernel[lo - start:hi - start]
-    return course
 
 
 # --- the sensor array ----------------------------------------------------------------
@@ -371,7 +359,7 @@ def test_blinks_give_large_frontal_fields_and_eog(recording):
     position = meg.helmet_locations()[0][row]
     assert position[1] > 0.07 and position[2] < meg.ORIGIN[2]
     # The course rebuilt from the truth's blink peaks dominates that channel and the EOG.
-    course = _blink_course(truth["blinks_s"], raw.n_times, SFREQ)
+    course = blink_course(truth["blinks_s"], raw.n_times, SFREQ)
     assert np.corrcoef(course, eog)[0, 1] > 0.9
     assert abs(np.corrcoef(course, frontal[row])[0, 1]) > 0.6
 

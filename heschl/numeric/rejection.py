@@ -9,6 +9,7 @@ import logging
 import numpy as np
 
 from heschl.errors import DefinitionError, InputDataError, problem
+from heschl.sensors import DISPLAY
 
 __all__ = ["peak_to_peak", "fixed_threshold"]
 
@@ -65,14 +66,10 @@ def _limits(limit, n_channels):
     return np.broadcast_to(limits, (n_channels,))
 
 
-# Sensor type -> (unit shown, factor from SI); EEG in uV, magnetometers in fT, gradiometers in fT/cm.
-_UNITS = {"eeg": ("uV", 1e6), "mag": ("fT", 1e15), "grad": ("fT/cm", 1e13)}
-
-
 def _reason(value, lim, name, kind="eeg"):
     if not np.isfinite(value):
         return f"peak-to-peak not finite ({value}) at {name}"
-    unit, factor = _UNITS[kind]
+    unit, factor = DISPLAY[kind]
     scale = factor / 1e6  # _microvolts shows value * 1e6
     return f"peak-to-peak {_microvolts(value * scale, lim * scale)} {unit} > {_microvolts(lim * scale)} {unit} at {name}"
 

@@ -64,6 +64,22 @@ def _blink_kernel(sfreq):
     return np.exp(-0.5 * (times / sd) ** 2)
 
 
+def blink_course(blinks_s, n_times, sfreq):
+    """Unit blink time course with a blink peaking at each time of ``blinks_s`` (s).
+
+    The generator's own blink shape, for tests that rebuild the blink source from the
+    truth record. Shape (n_times,); blinks reaching past either end are cut.
+    """
+    kernel = _blink_kernel(sfreq)
+    course = np.zeros(n_times)
+    for peak in blinks_s:
+        start = int(round((peak - 0.3) * sfreq))
+        lo, hi = max(start, 0), min(start + kernel.size, n_times)
+        if hi > lo:
+            course[lo:hi] += kernel[lo - start:hi - start]
+    return course
+
+
 def _blink_times(rng, schedule):
     """Blink peak times, s: a fixed rate, at least 1 s apart, eyes open only at rest.
 

@@ -190,6 +190,11 @@ def write_fif(path, data, ch_names, ch_types, sfreq, *, stim, line_freq, start, 
     info["subject_info"] = {"his_id": subject}
     raw = mne.io.RawArray(np.vstack([data, stim[None, :]]), info, verbose=False)
     raw.set_montage(standard_montage(), on_missing="ignore", verbose=False)
+    return _save_fif(raw, path, start)
+
+
+def _save_fif(raw, path, start):
+    """Stamp the start time (naive, taken as UTC) and save; returns the file name written."""
     raw.set_meas_date(start.replace(tzinfo=datetime.timezone.utc))
     raw.save(Path(path), overwrite=True, verbose=False)
     return [Path(path).name]
@@ -225,6 +230,4 @@ def write_meg_fif(path, data, info, *, stim, start, subject):
     info = info.copy()
     info["subject_info"] = {"his_id": subject}
     raw = mne.io.RawArray(np.vstack([data, stim[None, :]]), info, verbose=False)
-    raw.set_meas_date(start.replace(tzinfo=datetime.timezone.utc))
-    raw.save(Path(path), overwrite=True, verbose=False)
-    return [Path(path).name]
+    return _save_fif(raw, path, start)

@@ -168,7 +168,7 @@ FILTERED = DATA_TYPES + ("eog",)
 def filter_pass_band(raw, band):
     """Zero-phase FIR band-pass with mne's defaults; returns the filter's description.
 
-    The description names what REFERENCES F26 asks a report to state: type, cut-offs with
+    The description names what docs/REFERENCES.md F26 asks a report to state: type, cut-offs with
     their definition, causality, length and the sampling rate.
     """
     low, high = band

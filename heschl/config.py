@@ -472,7 +472,7 @@ def _cleaning(top):
         section.fail("pass_band", f"lower edge {_num(band[0])} Hz must be above 0 Hz",
                      "use e.g. 0.1 Hz for event-related data")
     if band[1] >= rate / 2:
-        # REFERENCES F26: the low-pass must stay below the Nyquist frequency of the new rate.
+        # docs/REFERENCES.md F26: the low-pass must stay below the Nyquist frequency of the new rate.
         section.fail("pass_band", f"upper edge {_num(band[1])} Hz is not below the Nyquist frequency "
                      f"{_num(rate / 2)} Hz of sampling_rate {_num(rate)} Hz",
                      f"lower the upper edge below {_num(rate / 2)} Hz or raise sampling_rate")
@@ -717,7 +717,7 @@ def _measure_frequency(section, paradigm):
     nyquist = paradigm.cleaning.sampling_rate / 2
     freq = section.number("frequency", unit="Hz", low=0.0, strict_low=True)
     if freq >= nyquist:
-        # REFERENCES F26: a 40 Hz analysis needs a sampling rate above 80 Hz.
+        # docs/REFERENCES.md F26: a 40 Hz analysis needs a sampling rate above 80 Hz.
         section.fail("frequency", f"{_num(freq)} Hz is not below the Nyquist frequency {_num(nyquist)} Hz "
                      f"of paradigm \"{paradigm.name}\"", "raise the paradigm's cleaning.sampling_rate")
     low, high = paradigm.cleaning.pass_band

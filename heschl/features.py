@@ -26,7 +26,7 @@ UNIT_SCALE = {"uV": 1e6, "V": 1.0, "ms": 1e3, "s": 1.0, "1": 1.0, "uV^2": 1e12, 
               "fT/cm": 1e13, "T/m": 1.0, "(fT/cm)^2": 1e26, "(T/m)^2": 1.0}         # gradiometers (T/m)
 # Quantities on a log scale are shifted, not scaled: log10(uV^2/Hz) = log10(V^2/Hz) + 12.
 UNIT_SHIFT = {"log10(uV^2/Hz)": 12.0, "log10(fT^2/Hz)": 30.0, "log10((fT/cm)^2/Hz)": 26.0}
-N_CYCLES = 7.0  # Morlet cycles for phase measures; temporal SD 28 ms at 40 Hz (REFERENCES F24)
+N_CYCLES = 7.0  # Morlet cycles for phase measures; temporal SD 28 ms at 40 Hz (docs/REFERENCES.md F24)
 
 
 class Source:

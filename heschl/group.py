@@ -263,7 +263,7 @@ def _scope_row(rows, n_excluded, n_missing, groups, comparison, reference, level
 
 def _cohort_split_half(rows):
     """Spearman-Brown-corrected correlation across recordings of the odd- and even-trial
-    values (REFERENCES F31: Clayson & Miller 2017); NaN without those columns or with
+    values (docs/REFERENCES.md F31: Clayson & Miller 2017); NaN without those columns or with
     fewer than 3 recordings."""
     import pandas as pd
 

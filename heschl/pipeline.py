@@ -449,7 +449,7 @@ MASTOIDS = ("M1", "M2", "TP9", "TP10")
 def _mastoid_inversion(analysis, source):
     """For each contrast read by a mean-amplitude measure: its value in the measure's region
     and at the mastoids over the same window, in uV. Under an average or nose reference a
-    supratemporal generator makes the two opposite in sign (REFERENCES F19)."""
+    supratemporal generator makes the two opposite in sign (docs/REFERENCES.md F19)."""
     from .numeric.erp import mean_amplitude, region_mean
 
     mastoids = [c for c in MASTOIDS if c in source.ch_names]
@@ -617,7 +617,7 @@ def _qc(recording, harmonised, cleaning, markers, counts, rows, paradigm, snr):
         flags.append(_flag("note", "unmapped-markers", "codes in the file not used by this paradigm: "
                            + ", ".join(f"{k} ({v})" for k, v in sorted(markers.unknown.items()))))
     if harmonised["file_sampling_rate"] < 200:
-        # REFERENCES F27: digital EEG guidelines ask for at least 200 Hz.
+        # docs/REFERENCES.md F27: digital EEG guidelines ask for at least 200 Hz.
         flags.append(_flag("caution", "low-sampling-rate",
                            f"recorded at {harmonised['file_sampling_rate']:g} Hz, below 200 Hz"))
     if any(not np.isfinite(r["value"]) for r in rows):

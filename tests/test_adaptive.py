@@ -1,5 +1,5 @@
 """Adaptive rejection (heschl.adaptive): candidate rule, cluster counting, decisions, and
-the method-level check of REFERENCES F34 (Jas et al. 2017) on synthetic epochs.
+the method-level check of docs/REFERENCES.md F34 (Jas et al. 2017) on synthetic epochs.
 
 autoreject is fitted three times here (twice on 120 epochs in a module fixture, once on
 12 epochs): about 15-20 s on 2 cores.
@@ -27,7 +27,7 @@ NAMES = ["Fp1", "Fp2", "F7", "F3", "Fz", "F4", "F8", "FC5", "FC1", "FC2", "FC6",
          "C4", "T8", "TP9", "CP5", "CP1", "CP2", "CP6", "TP10", "P7", "P3", "Pz", "P4", "P8", "PO9",
          "O1", "Oz", "O2", "PO10"]
 N_EPOCHS = 120
-N_ARTEFACT = 12  # 10 % of the epochs (REFERENCES F34 suggested test)
+N_ARTEFACT = 12  # 10 % of the epochs (docs/REFERENCES.md F34 suggested test)
 N_SINGLE = 6
 
 #: The draw of the synthetic study. autoreject's per-channel thresholds depend on it:
@@ -254,7 +254,7 @@ def test_few_epochs_use_fewer_folds():
     assert cleaned.shape == (keep.sum(), 32, N_TIMES) and len(reasons) == 12
 
 
-# --- method-level check (REFERENCES F34, Jas et al. 2017) ------------------------------
+# --- method-level check (docs/REFERENCES.md F34, Jas et al. 2017) ------------------------------
 
 def test_clean_epochs_have_the_intended_amplitude(scenario):
     # Source: the F34 suggested test asks for clean peak-to-peak of about 40-60 uV.
@@ -263,14 +263,14 @@ def test_clean_epochs_have_the_intended_amplitude(scenario):
 
 
 def test_artefact_epochs_are_dropped(scenario):
-    # Source: REFERENCES F34 (Jas et al. 2017): all 300-500 uV artefact trials removed.
+    # Source: docs/REFERENCES.md F34 (Jas et al. 2017): all 300-500 uV artefact trials removed.
     _, keep, reasons, _ = scenario["alone"]
     assert not keep[scenario["artefact"]].any()
     assert all(reasons[e].startswith("adaptive: ") for e in scenario["artefact"])
 
 
 def test_few_clean_epochs_are_dropped(scenario):
-    # Source: REFERENCES F34 (Jas et al. 2017): < 5 % of clean trials removed.
+    # Source: docs/REFERENCES.md F34 (Jas et al. 2017): < 5 % of clean trials removed.
     _, keep, _, _ = scenario["alone"]
     clean = scenario["clean"]
     assert (~keep[clean]).sum() < 0.05 * len(clean)

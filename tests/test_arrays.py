@@ -1,7 +1,7 @@
 """Model-ready labelled arrays and their NetCDF files.
 
 External facts are named beside each assertion with their REFERENCES.md entry
-(shared/REFERENCES.md, "F<n>").
+(docs/REFERENCES.md, "F<n>").
 """
 import json
 import os
@@ -144,7 +144,7 @@ def test_spectra_hold_the_mean_welch_density_per_condition(rest):
 
 
 def test_csd_parts_rebuild_a_hermitian_matrix_whose_diagonal_is_the_psd(rest, tmp_path):
-    # REFERENCES F37: S is Hermitian and its diagonal is the Welch auto-spectrum of the
+    # docs/REFERENCES.md F37: S is Hermitian and its diagonal is the Welch auto-spectrum of the
     # same segments (Bendat & Piersol 2010; scipy.signal.csd / welch).
     spec = {"segment": 1.0, "overlap": 0.5}
     arrays = model_arrays(rest, design="resting", provenance={}, spectrum=spec,

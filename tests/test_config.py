@@ -72,7 +72,7 @@ overlap = 0.5
 method = "none"
 """
 
-# Sampled at 70 Hz: Nyquist 35 Hz, so the pass band must end below it (REFERENCES F26).
+# Sampled at 70 Hz: Nyquist 35 Hz, so the pass band must end below it (docs/REFERENCES.md F26).
 SLOW = """\
 name = "slow"
 design = "steady-state"
@@ -196,7 +196,7 @@ def test_builtin_paradigm_loads(name):
     assert (paradigm.epochs is None) != (paradigm.segments is None)
     assert (paradigm.segments is not None) == (paradigm.design == "resting")
     low, high = paradigm.cleaning.pass_band
-    assert 0 < low < high < paradigm.cleaning.sampling_rate / 2  # REFERENCES F26
+    assert 0 < low < high < paradigm.cleaning.sampling_rate / 2  # docs/REFERENCES.md F26
 
 
 @pytest.mark.parametrize("name", config.builtin_names("features"))
@@ -320,13 +320,13 @@ INVALID = {
     "paradigm-sampling-rate-text": (
         "paradigm", None, _edit(TONES, "sampling_rate = 250.0", 'sampling_rate = "250 Hz"'),
         "cleaning.sampling_rate", ['expected a number in Hz, got "250 Hz"'], "write a plain number"),
-    # REFERENCES F26: the low-pass edge must stay below the Nyquist frequency fs/2.
+    # docs/REFERENCES.md F26: the low-pass edge must stay below the Nyquist frequency fs/2.
     "paradigm-pass-band-at-nyquist": (
         "paradigm", None, _edit(TONES, "[0.1, 30.0]", "[0.1, 125.0]"),
         "cleaning.pass_band",
         ["upper edge 125 Hz is not below the Nyquist frequency 125 Hz of sampling_rate 250 Hz"],
         "lower the upper edge below 125 Hz or raise sampling_rate"),
-    "paradigm-pass-band-above-nyquist": (  # REFERENCES F26
+    "paradigm-pass-band-above-nyquist": (  # docs/REFERENCES.md F26
         "paradigm", None, _edit(TONES, "[0.1, 30.0]", "[0.1, 200.0]"),
         "cleaning.pass_band", ["upper edge 200 Hz is not below the Nyquist frequency 125 Hz"],
         "lower the upper edge below 125 Hz or raise sampling_rate"),
@@ -432,7 +432,7 @@ INVALID = {
     "features-unknown-unit": (
         "features", "tones", TONES_FEATURES + 'unit = "mV"\n',
         "measures[0].unit", ['"mV" is not a known choice'], "use one of: uV, V"),
-    # REFERENCES F26: a 40 Hz analysis needs fs > 80 Hz; at 70 Hz Nyquist is 35 Hz.
+    # docs/REFERENCES.md F26: a 40 Hz analysis needs fs > 80 Hz; at 70 Hz Nyquist is 35 Hz.
     "features-itpc-above-nyquist": (
         "features", "slow", SLOW_FEATURES + "\n" + ITPC_40,
         "measures[1].frequency", ['40 Hz is not below the Nyquist frequency 35 Hz of paradigm "slow"'],
@@ -594,7 +594,7 @@ def test_config_import_does_not_import_mne():
 
 
 def test_rest_band_defaults_follow_the_ifcn_glossary():
-    # REFERENCES F14 (Kane et al. 2017, IFCN revised glossary): theta 4 to <8 Hz, alpha
+    # docs/REFERENCES.md F14 (Kane et al. 2017, IFCN revised glossary): theta 4 to <8 Hz, alpha
     # 8-13 Hz, beta 14-30 Hz, gamma > 30 Hz; 8.0 -> alpha, 7.99 -> theta, 13.0 -> alpha,
     # 13.5 -> no band, 30.0 -> beta, 30.01 -> gamma.
     from heschl.numeric.spectra import band_power

@@ -1,7 +1,7 @@
 """Group summary: Hedges' g, t intervals of group means, flags and site adjustment.
 
 External facts are named beside each assertion with their REFERENCES.md entry
-(shared/REFERENCES.md, "F<n>") or their textbook source. Random draws are seeded, so
+(docs/REFERENCES.md, "F<n>") or their textbook source. Random draws are seeded, so
 every tolerance is a fixed, reasoned margin around a deterministic number.
 """
 import math
@@ -54,7 +54,7 @@ def _d_via_t_test(a, b):
     return t * math.sqrt(1 / a.size + 1 / b.size)
 
 
-# -- hedges_g: REFERENCES F23 (Thune et al. 2016), Hedges & Olkin (1985) ------------------
+# -- hedges_g: docs/REFERENCES.md F23 (Thune et al. 2016), Hedges & Olkin (1985) ------------------
 
 
 def test_hedges_g_matches_scipy_d_times_j(rng):
@@ -358,7 +358,7 @@ def test_site_named_pooled_is_refused(rng):
 
 
 def test_cohort_split_half_from_odd_and_even_halves():
-    # REFERENCES F31 (Clayson & Miller 2017; Lord & Novick 1968): true-score SD 1, trial
+    # docs/REFERENCES.md F31 (Clayson & Miller 2017; Lord & Novick 1968): true-score SD 1, trial
     # noise SD 8, 100 trials -> reliability of the mean 0.6098; the Spearman-Brown-corrected
     # odd/even correlation over 1000 simulated recordings lands within 0.08 of it.
     rng = np.random.default_rng(11)

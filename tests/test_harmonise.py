@@ -25,14 +25,14 @@ def _positions(montage):
 
 
 def test_old_names_map_to_new_names():
-    # REFERENCES F16: ACNS Guideline 2 (2016) renames T3->T7, T4->T8, T5->P7, T6->P8.
+    # docs/REFERENCES.md F16: ACNS Guideline 2 (2016) renames T3->T7, T4->T8, T5->P7, T6->P8.
     assert OLD_NAMES == {"T3": "T7", "T4": "T8", "T5": "P7", "T6": "P8"}
     mapping = canonical_channel_names(["T3", "T4", "T5", "T6"])
     assert mapping == {"T3": "T7", "T4": "T8", "T5": "P7", "T6": "P8"}
 
 
 def test_old_and_new_names_share_positions_in_mne_1020_montage():
-    # REFERENCES F16: mne's shipped 10-20 montage holds both spellings at identical
+    # docs/REFERENCES.md F16: mne's shipped 10-20 montage holds both spellings at identical
     # coordinates (distance 0.0 m); 1e-9 m tolerance is float noise only.
     pos = _positions(_template("1020"))
     for old, new in OLD_NAMES.items():
@@ -40,7 +40,7 @@ def test_old_and_new_names_share_positions_in_mne_1020_montage():
 
 
 def test_renamed_channels_get_the_positions_of_their_new_names():
-    # REFERENCES F16: positions of the renamed labels equal mne's positions of the new labels.
+    # docs/REFERENCES.md F16: positions of the renamed labels equal mne's positions of the new labels.
     ours = _positions(standard_montage())
     ref = _positions(_template("1020"))
     for old in OLD_NAMES:
@@ -49,7 +49,7 @@ def test_renamed_channels_get_the_positions_of_their_new_names():
 
 
 def test_names_are_case_robust_and_keep_unknown_names():
-    # REFERENCES F16: 'FCZ' -> 'FCz' (case-robust mapping).
+    # docs/REFERENCES.md F16: 'FCZ' -> 'FCz' (case-robust mapping).
     mapping = canonical_channel_names(["FCZ", "FP1", "EEG Cz", "Fz", "VEOG", "STI 014"])
     assert mapping == {"FCZ": "FCz", "FP1": "Fp1", "EEG Cz": "Cz"}
 
@@ -60,7 +60,7 @@ def test_site_aliases_take_precedence():
 
 
 def test_hemisphere_convention_holds_in_the_montage():
-    # REFERENCES F17: odd numbers left (x < 0), even right (x > 0), z midline (|x| < 5 mm).
+    # docs/REFERENCES.md F17: odd numbers left (x < 0), even right (x > 0), z midline (|x| < 5 mm).
     for name, xyz in _positions(standard_montage()).items():
         digits = "".join(ch for ch in name if ch.isdigit())
         if name.lower().endswith("z"):

@@ -43,7 +43,7 @@ def _raw(rng, *, line=50.0, amplitude=10 * UV, duration=10.0, n_channels=8, sfre
 
 
 def test_ratio_of_tone_in_white_noise_matches_parseval(rng):
-    # Parseval / REFERENCES F10: a one-sided density summed over the bins holding a
+    # Parseval / docs/REFERENCES.md F10: a one-sided density summed over the bins holding a
     # bin-centred tone gives A^2/2; white noise of variance s^2 has density 2 s^2 / fs.
     # With 4 s segments the 1 Hz band holds 5 bins of 0.25 Hz, so the expected ratio is
     # 1 + (A^2/2) / (5 * 0.25 Hz) / (2 s^2 / fs) = 51 for A = s = 10 uV at 250 Hz.

@@ -1,7 +1,7 @@
 """Cross-spectral density matrices, coherence, imaginary coherency and shrinkage.
 
 External facts are named beside each assertion with their REFERENCES.md entry
-(shared/REFERENCES.md, "F<n>").
+(docs/REFERENCES.md, "F<n>").
 """
 import warnings
 
@@ -37,11 +37,11 @@ def _diagonal(csd):
     return np.diagonal(csd, axis1=-2, axis2=-1)  # (n_freqs, n_channels)
 
 
-# -- structure of the CSD matrix (REFERENCES F37) ---------------------------------------
+# -- structure of the CSD matrix (docs/REFERENCES.md F37) ---------------------------------------
 
 
 def test_csd_is_hermitian_positive_semidefinite_with_the_welch_psd_on_its_diagonal(rng):
-    # REFERENCES F37 (Bendat & Piersol 2010; scipy.signal.csd / welch).
+    # docs/REFERENCES.md F37 (Bendat & Piersol 2010; scipy.signal.csd / welch).
     x = _mixed_trials(rng)
     freqs, csd = cross_spectra(x, AWKWARD_SFREQ, segment=2.0, overlap=0.5)
     assert csd.shape == (freqs.size, 3, 3) and np.iscomplexobj(csd)
@@ -65,7 +65,7 @@ def test_csd_is_hermitian_positive_semidefinite_with_the_welch_psd_on_its_diagon
 
 
 def test_off_diagonals_equal_scipy_csd_of_channel_i_with_channel_j(rng):
-    # REFERENCES F37: scipy.signal.csd(x=channel i, y=channel j) as the reference,
+    # docs/REFERENCES.md F37: scipy.signal.csd(x=channel i, y=channel j) as the reference,
     # including its conj(X_i) X_j order; rel 1e-10, the same sums in another order.
     x = _mixed_trials(rng, n_trials=1, n_times=1500)[0]
     nperseg = round(1.5 * AWKWARD_SFREQ)  # 155 samples, odd: no Nyquist bin
@@ -81,7 +81,7 @@ def test_off_diagonals_equal_scipy_csd_of_channel_i_with_channel_j(rng):
 
 
 def test_fewer_segments_than_channels_gives_rank_four_until_regularised(rng):
-    # REFERENCES F37: 8 white-noise channels, 4 non-overlapping segments -> rank 4.
+    # docs/REFERENCES.md F37: 8 white-noise channels, 4 non-overlapping segments -> rank 4.
     sfreq, nperseg = 250.0, 250
     x = 10e-6 * rng.standard_normal((8, 4 * nperseg))
     # fmin above 0 Hz: the mean removed from every segment leaves nothing at DC
@@ -101,11 +101,11 @@ def test_fewer_segments_than_channels_gives_rank_four_until_regularised(rng):
     np.testing.assert_array_equal(regularise(csd, 0.0), csd)
 
 
-# -- mne as an independent reference (REFERENCES F39) -----------------------------------
+# -- mne as an independent reference (docs/REFERENCES.md F39) -----------------------------------
 
 
 def test_csd_at_10_hz_matches_mne_csd_array_fourier(rng):
-    # REFERENCES F39: mne.time_frequency.csd_array_fourier, one whole-epoch FFT per
+    # docs/REFERENCES.md F39: mne.time_frequency.csd_array_fourier, one whole-epoch FFT per
     # epoch, averaged over epochs -- our Welch with one segment per trial.
     mne_tf = pytest.importorskip("mne.time_frequency")
     sfreq, n_times = 250.0, 500  # 0.5 Hz bins; 10 Hz lies on a bin
@@ -134,7 +134,7 @@ def test_csd_at_10_hz_matches_mne_csd_array_fourier(rng):
 
 
 def test_coherence_of_a_scaled_copy_is_one_and_its_imaginary_coherency_zero(rng):
-    # Definition |S_ij|^2 / (S_ii S_jj) (Bendat & Piersol 2010, REFERENCES F37 source):
+    # Definition |S_ij|^2 / (S_ii S_jj) (Bendat & Piersol 2010, docs/REFERENCES.md F37 source):
     # a channel and a scaled copy are perfectly coherent at zero lag.
     base = 10e-6 * rng.standard_normal(3000)
     x = np.stack([base, -2.5 * base, rng.standard_normal(3000) * 1e-6])
@@ -149,7 +149,7 @@ def test_coherence_of_a_scaled_copy_is_one_and_its_imaginary_coherency_zero(rng)
 
 
 def test_coherence_of_independent_noise_sits_at_its_small_sample_bias(rng):
-    # From memory (Bendat & Piersol 2010, REFERENCES F37 source): for independent
+    # From memory (Bendat & Piersol 2010, docs/REFERENCES.md F37 source): for independent
     # Gaussian signals the coherence estimated from K independent segments has
     # expectation 1/K (it follows Beta(1, K - 1)).
     sfreq, nperseg, k = 250.0, 250, 20

@@ -1,7 +1,7 @@
 """Mean amplitude, peak and region average on a synthetic mismatch negativity.
 
 External facts are named beside each assertion with their REFERENCES.md entry
-(shared/REFERENCES.md, "F<n>").
+(docs/REFERENCES.md, "F<n>").
 """
 import numpy as np
 import pytest
@@ -12,8 +12,8 @@ from heschl.numeric import mean_amplitude, peak, region_mean
 
 AWKWARD_SFREQ = 100 + np.pi  # Hz
 CHANNELS = ["Fz", "Cz", "Pz"]
-SCALES = np.array([1.0, 0.8, 0.3])  # REFERENCES F18: fronto-central maximum
-MMN_PEAK, MMN_SD, MMN_AMPLITUDE = 0.180, 0.030, -2e-6  # s, s, V (REFERENCES F18)
+SCALES = np.array([1.0, 0.8, 0.3])  # docs/REFERENCES.md F18: fronto-central maximum
+MMN_PEAK, MMN_SD, MMN_AMPLITUDE = 0.180, 0.030, -2e-6  # s, s, V (docs/REFERENCES.md F18)
 
 
 @pytest.fixture
@@ -32,7 +32,7 @@ def _mmn(times):
     return MMN_AMPLITUDE * SCALES[:, np.newaxis] * shape
 
 
-# -- REFERENCES F18: Naatanen et al. 2007; Duncan et al. 2009 ----------------------------
+# -- docs/REFERENCES.md F18: Naatanen et al. 2007; Duncan et al. 2009 ----------------------------
 
 
 def test_mmn_peak_latency_and_amplitude():
@@ -48,7 +48,7 @@ def test_mmn_peak_latency_and_amplitude():
 
 
 def test_mmn_peak_latency_at_awkward_sfreq():
-    # REFERENCES F18: latency within one sample even with no sample at 180 ms.
+    # docs/REFERENCES.md F18: latency within one sample even with no sample at 180 ms.
     times = _times(AWKWARD_SFREQ)
     result = peak(_mmn(times), times, (0.10, 0.25))
     assert np.all(np.abs(result.latency - MMN_PEAK) <= 1 / AWKWARD_SFREQ)
@@ -57,7 +57,7 @@ def test_mmn_peak_latency_at_awkward_sfreq():
 def test_mmn_mean_amplitude_against_samples_and_integral():
     # Mean over 100-250 ms, both ends included. fs 1000 Hz: the inclusive mean of 151
     # samples differs from integral / 0.15 s by ~0.6 % (at 500 Hz the extra endpoint
-    # sample alone would make it 1.3 %, beyond the 1 % of REFERENCES F18).
+    # sample alone would make it 1.3 %, beyond the 1 % of docs/REFERENCES.md F18).
     sfreq = 1000.0
     times = _times(sfreq)
     template = _mmn(times)
@@ -71,7 +71,7 @@ def test_mmn_mean_amplitude_against_samples_and_integral():
 
 
 def test_mean_amplitude_is_linear_in_the_conditions(rng):
-    # REFERENCES F18: mean(dev) - mean(std) == mean(dev - std).
+    # docs/REFERENCES.md F18: mean(dev) - mean(std) == mean(dev - std).
     times = _times(500.0)
     standard = 3e-6 * rng.standard_normal((3, times.size))
     deviant = standard + _mmn(times) + 1e-6 * rng.standard_normal((3, times.size))

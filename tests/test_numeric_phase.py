@@ -1,7 +1,7 @@
 """Morlet transform, ITPC, evoked/induced power, PPC and Rayleigh statistics.
 
 External facts are named beside each assertion with their REFERENCES.md entry
-(shared/REFERENCES.md, "F<n>").
+(docs/REFERENCES.md, "F<n>").
 """
 import warnings
 
@@ -26,7 +26,7 @@ from heschl.numeric import (
 )
 
 AWKWARD_SFREQ = 100 + np.pi  # Hz; no whole number of samples per second or per cycle
-WORKED_ANGLES = np.array([0.785, 1.570, 3.141, 0.839, 5.934])  # rad, REFERENCES F4
+WORKED_ANGLES = np.array([0.785, 1.570, 3.141, 0.839, 5.934])  # rad, docs/REFERENCES.md F4
 
 
 @pytest.fixture
@@ -58,7 +58,7 @@ def test_sinusoid_gives_rms_amplitude_and_cosine_phase():
 
 
 def test_morlet_power_equals_welch_band_power_of_a_sinusoid():
-    # Both give the mean power A^2 / 2 of a sinusoid (REFERENCES F10: A = 5 -> 12.5 V^2).
+    # Both give the mean power A^2 / 2 of a sinusoid (docs/REFERENCES.md F10: A = 5 -> 12.5 V^2).
     sfreq, amplitude = 500.0, 5.0
     t = np.arange(5000) / sfreq
     x = amplitude * np.sin(2 * np.pi * 40.0 * t)
@@ -121,7 +121,7 @@ def test_bad_transform_arguments_are_refused(call, error, pattern):
 
 
 def test_itpc_of_phase_locked_trials_is_one(rng):
-    # REFERENCES F1: Tallon-Baudry et al. 1996 -- ITPC = 1 for identical phases;
+    # docs/REFERENCES.md F1: Tallon-Baudry et al. 1996 -- ITPC = 1 for identical phases;
     # 60 trials, 40 Hz, 1 % noise, fs 500 Hz, 1.5 s: >= 0.999 in the steady part.
     t, trials = _phase_locked_trials(rng)
     coefs = morlet_transform(trials, 500.0, [40.0])[:, 0]
@@ -130,7 +130,7 @@ def test_itpc_of_phase_locked_trials_is_one(rng):
 
 
 def test_itpc_equals_one_minus_circular_variance(rng):
-    # REFERENCES F1: Fisher 1993 mean resultant length; scipy.stats.circvar and
+    # docs/REFERENCES.md F1: Fisher 1993 mean resultant length; scipy.stats.circvar and
     # scipy.stats.directional_stats as references.
     angles = rng.uniform(-np.pi, np.pi, size=(37, 4)) * rng.uniform(0, 1, size=4)
     r = itpc(np.exp(1j * angles))
@@ -138,12 +138,12 @@ def test_itpc_equals_one_minus_circular_variance(rng):
     vectors = np.stack([np.cos(angles[:, 0]), np.sin(angles[:, 0])], axis=1)
     reference = scipy.stats.directional_stats(vectors).mean_resultant_length
     assert r[0] == pytest.approx(reference, abs=1e-12)
-    # REFERENCES F1/F4 worked angles: R = 0.497230 (recomputed there)
+    # docs/REFERENCES.md F1/F4 worked angles: R = 0.497230 (recomputed there)
     assert itpc(np.exp(1j * WORKED_ANGLES)) == pytest.approx(0.497230, abs=1e-6)
 
 
 def test_itpc_matches_mne_tfr_array_morlet(rng):
-    # REFERENCES F1: mne.time_frequency.tfr_array_morlet(output='itc') as reference.
+    # docs/REFERENCES.md F1: mne.time_frequency.tfr_array_morlet(output='itc') as reference.
     mne_tf = pytest.importorskip("mne.time_frequency")
     sfreq, n_times = 250.0, 500
     t = np.arange(n_times) / sfreq
@@ -174,12 +174,12 @@ def test_missing_trial_axis_is_refused():
         itpc(np.ones((4, 5), dtype=complex), axis=3)
 
 
-# -- null distribution (REFERENCES F2) --------------------------------------------------
+# -- null distribution (docs/REFERENCES.md F2) --------------------------------------------------
 
 
 @pytest.mark.parametrize("n", [5, 20, 60])
 def test_mean_squared_itpc_is_one_over_n_under_uniform_phases(rng, n):
-    # REFERENCES F2: Fisher 1993 ch. 4 -- E[R^2] = 1/N exactly for uniform phases
+    # docs/REFERENCES.md F2: Fisher 1993 ch. 4 -- E[R^2] = 1/N exactly for uniform phases
     # (formula from memory there; checked here by Monte-Carlo within 3 standard errors).
     r2 = itpc(np.exp(1j * rng.uniform(0, 2 * np.pi, size=(n, 20000))), axis=0) ** 2
     se = r2.std(ddof=1) / np.sqrt(r2.size)
@@ -187,7 +187,7 @@ def test_mean_squared_itpc_is_one_over_n_under_uniform_phases(rng, n):
 
 
 def test_itpc_null_follows_rayleigh_distribution(rng):
-    # REFERENCES F2: R ~ Rayleigh(scale 1/sqrt(2N)) for N >= 20; scipy.stats.rayleigh
+    # docs/REFERENCES.md F2: R ~ Rayleigh(scale 1/sqrt(2N)) for N >= 20; scipy.stats.rayleigh
     # as reference; E[R] = sqrt(pi / (4N)) within 1 % (approximation error < 0.5 % there).
     n = 20
     r = itpc(np.exp(1j * rng.uniform(0, 2 * np.pi, size=(n, 20000))), axis=0)
@@ -196,7 +196,7 @@ def test_itpc_null_follows_rayleigh_distribution(rng):
 
 
 def test_itpc_of_random_phase_sinusoids_through_the_transform(rng):
-    # REFERENCES F2: E[ITPC^2] = 1/N, averaged over many simulated experiments (a single
+    # docs/REFERENCES.md F2: E[ITPC^2] = 1/N, averaged over many simulated experiments (a single
     # draw is not enough); here 2000 experiments of N = 20 trials of a 40 Hz sinusoid.
     n, sfreq = 20, 500.0
     t = np.arange(150) / sfreq  # just longer than the 139-sample wavelet
@@ -206,11 +206,11 @@ def test_itpc_of_random_phase_sinusoids_through_the_transform(rng):
     assert abs(r2.mean() - 1 / n) < 3 * r2.std(ddof=1) / np.sqrt(r2.size)
 
 
-# -- evoked, total, induced (REFERENCES F3) --------------------------------------------
+# -- evoked, total, induced (docs/REFERENCES.md F3) --------------------------------------------
 
 
 def test_evoked_over_total_equals_itpc_squared_for_equal_amplitudes(rng):
-    # REFERENCES F3: Tallon-Baudry & Bertrand 1999 (definitions from memory; identity
+    # docs/REFERENCES.md F3: Tallon-Baudry & Bertrand 1999 (definitions from memory; identity
     # recomputed there): evoked/total = ITPC^2 when all trials have equal amplitude.
     amplitude = 3e-6  # V
     coefs = amplitude * np.exp(1j * rng.vonmises(0.0, 2.0, size=(40, 5)))
@@ -222,7 +222,7 @@ def test_evoked_over_total_equals_itpc_squared_for_equal_amplitudes(rng):
 
 
 def test_identical_trials_have_no_induced_power(rng):
-    # REFERENCES F3: perfect phase locking -> induced = 0, evoked = total.
+    # docs/REFERENCES.md F3: perfect phase locking -> induced = 0, evoked = total.
     t, trials = _phase_locked_trials(rng)
     coefs = morlet_transform(np.repeat(trials[:1], 25, axis=0), 500.0, [40.0])
     total = total_power(coefs)
@@ -238,7 +238,7 @@ def test_induced_power_is_power_of_trials_minus_their_average(rng):
 
 
 def test_evoked_share_is_one_over_n_under_uniform_phases(rng):
-    # REFERENCES F3: uniform random phases -> E[evoked] = total / N; mean over 2000
+    # docs/REFERENCES.md F3: uniform random phases -> E[evoked] = total / N; mean over 2000
     # simulated experiments within 5 % of 1/N.
     n = 30
     coefs = np.exp(1j * rng.uniform(0, 2 * np.pi, size=(n, 2000)))
@@ -246,11 +246,11 @@ def test_evoked_share_is_one_over_n_under_uniform_phases(rng):
     assert ratio.mean() == pytest.approx(1 / n, rel=0.05)
 
 
-# -- pairwise phase consistency (REFERENCES F40) ----------------------------------------
+# -- pairwise phase consistency (docs/REFERENCES.md F40) ----------------------------------------
 
 
 def test_ppc_closed_form_equals_pairwise_sum(rng):
-    # REFERENCES F40: Vinck et al. 2010 -- PPC = mean over pairs of cos(theta_j - theta_k).
+    # docs/REFERENCES.md F40: Vinck et al. 2010 -- PPC = mean over pairs of cos(theta_j - theta_k).
     angles = rng.uniform(-np.pi, np.pi, size=(23, 6))
     j, k = np.triu_indices(23, k=1)
     pairwise = np.cos(angles[j] - angles[k]).mean(axis=0)
@@ -261,13 +261,13 @@ def test_ppc_closed_form_equals_pairwise_sum(rng):
 
 @pytest.mark.parametrize("n", [5, 20, 100])
 def test_ppc_is_unbiased_under_uniform_phases(rng, n):
-    # REFERENCES F40: E[PPC] = 0 for every N under uniform phases, within 3 SE.
+    # docs/REFERENCES.md F40: E[PPC] = 0 for every N under uniform phases, within 3 SE.
     ppc = pairwise_phase_consistency(rng.uniform(0, 2 * np.pi, size=(n, 20000)))
     assert abs(ppc.mean()) < 3 * ppc.std(ddof=1) / np.sqrt(ppc.size)
 
 
 def test_ppc_estimates_squared_population_resultant_length(rng):
-    # REFERENCES F40: von Mises kappa = 2 -> rho = I1(2)/I0(2) = 0.6978, E[PPC] = rho^2.
+    # docs/REFERENCES.md F40: von Mises kappa = 2 -> rho = I1(2)/I0(2) = 0.6978, E[PPC] = rho^2.
     rho = scipy.special.i1(2.0) / scipy.special.i0(2.0)
     assert rho == pytest.approx(0.6978, abs=1e-4)
     ppc = pairwise_phase_consistency(rng.vonmises(0.0, 2.0, size=(15, 20000)))
@@ -279,15 +279,15 @@ def test_ppc_needs_two_trials():
         pairwise_phase_consistency(np.zeros((1, 4)))
 
 
-# -- Rayleigh test and critical ITPC (REFERENCES F4, F8) --------------------------------
+# -- Rayleigh test and critical ITPC (docs/REFERENCES.md F4, F8) --------------------------------
 
 
 def test_rayleigh_worked_example():
-    # REFERENCES F4: Zar, Biostatistical Analysis (eqs. 27.1-27.2 and p-value
+    # docs/REFERENCES.md F4: Zar, Biostatistical Analysis (eqs. 27.1-27.2 and p-value
     # approximation); pingouin circ_rayleigh docs example: Z = 1.236, p = 0.304844.
     z, p = rayleigh(WORKED_ANGLES)
     assert z == pytest.approx(1.236, abs=5e-4)  # printed to 3 decimals
-    assert z == pytest.approx(1.23619, abs=1e-5)  # recomputed value in REFERENCES F4
+    assert z == pytest.approx(1.23619, abs=1e-5)  # recomputed value in docs/REFERENCES.md F4
     assert p == pytest.approx(0.304844, abs=1e-6)
     assert np.exp(-z) == pytest.approx(0.2905, abs=1e-4)  # large-N form, not implemented
 
@@ -312,13 +312,13 @@ def test_rayleigh_refuses_bad_r_and_n():
                          [(20, 0.05, 0.387), (50, 0.05, 0.245), (100, 0.05, 0.173),
                           (100, 0.01, 0.215)])
 def test_itpc_critical_values(n, alpha, expected):
-    # REFERENCES F8: Cohen 2014 (book values from memory; recomputed there).
+    # docs/REFERENCES.md F8: Cohen 2014 (book values from memory; recomputed there).
     assert itpc_critical(n, alpha) == pytest.approx(expected, abs=1e-3)
 
 
 @pytest.mark.parametrize("n", [50, 100])
 def test_itpc_critical_false_positive_rate(rng, n):
-    # REFERENCES F8: false-positive rate of ITPC > R_crit under uniform phases is
+    # docs/REFERENCES.md F8: false-positive rate of ITPC > R_crit under uniform phases is
     # alpha within +/- 20 % relative for N >= 50 (recomputed there: 0.0489, 0.0493).
     r = itpc(np.exp(1j * rng.uniform(0, 2 * np.pi, size=(n, 20000))), axis=0)
     assert np.mean(r > itpc_critical(n, 0.05)) == pytest.approx(0.05, rel=0.2)

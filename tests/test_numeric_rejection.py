@@ -1,7 +1,7 @@
 """Peak-to-peak rejection with a fixed limit.
 
 External facts are named beside each assertion with their REFERENCES.md entry
-(shared/REFERENCES.md, "F<n>").
+(docs/REFERENCES.md, "F<n>").
 """
 import logging
 import warnings
@@ -15,7 +15,7 @@ from heschl.numeric import fixed_threshold, peak_to_peak
 AWKWARD_SFREQ = 100 + np.pi  # Hz
 CHANNELS = ["Fp1", "Fz", "Cz", "Pz"]
 BLINK_EPOCHS = [7, 23, 48, 61, 90]
-LIMIT = 100e-6  # V; a common fixed EEG limit (REFERENCES F33, common practice)
+LIMIT = 100e-6  # V; a common fixed EEG limit (docs/REFERENCES.md F33, common practice)
 
 
 @pytest.fixture
@@ -40,7 +40,7 @@ def test_peak_to_peak_is_max_minus_min(rng):
 
 
 def test_blink_epochs_and_only_those_are_dropped(epochs):
-    # REFERENCES F33: 100 epochs, 5 with a 200 uV blink at Fp1 -> exactly those 5 at 100 uV.
+    # docs/REFERENCES.md F33: 100 epochs, 5 with a 200 uV blink at Fp1 -> exactly those 5 at 100 uV.
     keep, reasons = fixed_threshold(peak_to_peak(epochs), LIMIT, CHANNELS)
     assert np.flatnonzero(~keep).tolist() == BLINK_EPOCHS
     assert all(reasons[i] == () for i in np.flatnonzero(keep))
@@ -50,7 +50,7 @@ def test_blink_epochs_and_only_those_are_dropped(epochs):
 
 
 def test_baseline_correction_changes_nothing(epochs):
-    # REFERENCES F33: baseline correction cannot change peak-to-peak amplitude.
+    # docs/REFERENCES.md F33: baseline correction cannot change peak-to-peak amplitude.
     baseline = epochs[..., :20].mean(axis=-1, keepdims=True)  # first ~0.19 s
     before = fixed_threshold(peak_to_peak(epochs), LIMIT, CHANNELS)
     after = fixed_threshold(peak_to_peak(epochs - baseline), LIMIT, CHANNELS)
@@ -61,7 +61,7 @@ def test_baseline_correction_changes_nothing(epochs):
 
 
 def test_same_epochs_as_mne_reject(epochs):
-    # REFERENCES F33: mne Epochs(reject=dict(eeg=100e-6)) documentation, same array.
+    # docs/REFERENCES.md F33: mne Epochs(reject=dict(eeg=100e-6)) documentation, same array.
     mne = pytest.importorskip("mne")
     info = mne.create_info(CHANNELS, AWKWARD_SFREQ, ch_types="eeg")
     with warnings.catch_warnings():

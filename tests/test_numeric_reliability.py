@@ -1,7 +1,7 @@
 """Spearman-Brown, split-half reliability, bootstrap intervals and SME.
 
 External facts are named beside each assertion with their REFERENCES.md entry
-(shared/REFERENCES.md, "F<n>"). Amplitudes are in V inside the code; "uV" in comments.
+(docs/REFERENCES.md, "F<n>"). Amplitudes are in V inside the code; "uV" in comments.
 Simulations are vectorised and seeded, so every tolerance below is a fixed, reasoned
 margin around a deterministic number.
 """
@@ -48,7 +48,7 @@ def _cohort(rng, n_subjects=1000, n_trials=100, true_sd=1.0, noise_sd=8.0):
     return true + noise_sd * rng.standard_normal((n_subjects, n_trials))
 
 
-# -- REFERENCES F30: Spearman (1910); Brown (1910) ------------------------------------------
+# -- docs/REFERENCES.md F30: Spearman (1910); Brown (1910) ------------------------------------------
 
 
 def test_spearman_brown_worked_values():
@@ -85,7 +85,7 @@ def test_spearman_brown_errors():
         lengthening_factor(0.5, 1.0)
 
 
-# -- REFERENCES F28: Luck, Stewart, Simmons & Rhemtulla (2021), SME -------------------------
+# -- docs/REFERENCES.md F28: Luck, Stewart, Simmons & Rhemtulla (2021), SME -------------------------
 
 
 def test_sme_of_standardised_window_means(rng):
@@ -169,7 +169,7 @@ def test_bootstrap_sme_of_peak_amplitude_shrinks_with_trials(rng):
         trials[:100], amplitude, n_boot=50, batched=True)
 
 
-# -- REFERENCES F29: error propagation; Luck et al. (2021) -----------------------------------
+# -- docs/REFERENCES.md F29: error propagation; Luck et al. (2021) -----------------------------------
 
 
 def test_sme_of_difference_deviant_minus_standard(rng):
@@ -248,7 +248,7 @@ def test_bootstrap_errors(rng):
         bootstrap_sme(trials, np.mean, n_boot=10, batched=True)
 
 
-# -- REFERENCES F31: Clayson & Miller (2017); Lord & Novick (1968) --------------------------
+# -- docs/REFERENCES.md F31: Clayson & Miller (2017); Lord & Novick (1968) --------------------------
 
 # F31 classical test theory: reliability of an N-trial mean = sT^2 / (sT^2 + se^2 / N);
 # sT = 1, se = 8, N = 100 -> 1 / (1 + 0.64) = 0.6098.

@@ -1,7 +1,7 @@
 """Aperiodic (power-law) fit and the individual alpha peak frequency.
 
 External facts are named beside each assertion with their REFERENCES.md entry
-(shared/REFERENCES.md, "F<n>").
+(docs/REFERENCES.md, "F<n>").
 """
 import numpy as np
 import pytest
@@ -37,11 +37,11 @@ def _shaped_noise(rng, exponent, sfreq, duration, alpha_gain=0.0):
     return 1e-5 * np.fft.irfft(np.fft.rfft(rng.standard_normal(n)) * gain, n)
 
 
-# -- individual alpha peak frequency (REFERENCES F15) -----------------------------------
+# -- individual alpha peak frequency (docs/REFERENCES.md F15) -----------------------------------
 
 
 def test_eyes_closed_alpha_peak_is_found_near_10_hz(rng):
-    # REFERENCES F15: fs 250 Hz, 60 s, 20 uV 10 Hz sinusoid + white noise SD 5 uV,
+    # docs/REFERENCES.md F15: fs 250 Hz, 60 s, 20 uV 10 Hz sinusoid + white noise SD 5 uV,
     # Welch nperseg 500 -> individual alpha peak frequency within 9.5-10.5 Hz.
     sfreq = 250.0
     t = _time(sfreq, 60.0)
@@ -54,7 +54,7 @@ def test_eyes_closed_alpha_peak_is_found_near_10_hz(rng):
 
 @pytest.mark.parametrize("sfreq", [250.0, AWKWARD_SFREQ])
 def test_parabolic_interpolation_places_an_off_bin_peak(rng, sfreq):
-    # REFERENCES F15 setting with an off-bin alpha: a 9.3 Hz sinusoid seen with ~0.5 Hz
+    # docs/REFERENCES.md F15 setting with an off-bin alpha: a 9.3 Hz sinusoid seen with ~0.5 Hz
     # bins lies 0.2 Hz from the nearest bin. Quadratic interpolation of a Hann-windowed
     # peak in log power is accurate to a few hundredths of a bin (Smith & Serra 1987,
     # from memory); 0.15 Hz (0.3 bins) is the brief's bound, observed error < 0.01 Hz.

@@ -1,7 +1,7 @@
 """Welch spectra, band power and SNR against neighbouring bins.
 
 External facts are named beside each assertion with their REFERENCES.md entry
-(shared/REFERENCES.md, "F<n>").
+(docs/REFERENCES.md, "F<n>").
 """
 import warnings
 
@@ -26,11 +26,11 @@ def _tone(amplitude, freq, sfreq, duration):
     return amplitude * np.sin(2 * np.pi * freq * t)
 
 
-# -- Welch (REFERENCES F9, F13) ---------------------------------------------------------
+# -- Welch (docs/REFERENCES.md F9, F13) ---------------------------------------------------------
 
 
 def test_welch_equals_scipy_welch_at_awkward_sfreq(rng):
-    # REFERENCES F9: scipy.signal.welch as reference (Welch 1967), identical parameters.
+    # docs/REFERENCES.md F9: scipy.signal.welch as reference (Welch 1967), identical parameters.
     x = 10e-6 * rng.standard_normal((3, 2, 3000))
     freqs, psd = welch_psd(x, AWKWARD_SFREQ, segment=2.0, overlap=0.5)
     nperseg = round(2.0 * AWKWARD_SFREQ)  # 206 samples
@@ -42,7 +42,7 @@ def test_welch_equals_scipy_welch_at_awkward_sfreq(rng):
 
 
 def test_welch_and_band_power_match_mne_psd_array_welch(rng):
-    # REFERENCES F13: mne.time_frequency.psd_array_welch equals scipy's Welch to ~1e-15.
+    # docs/REFERENCES.md F13: mne.time_frequency.psd_array_welch equals scipy's Welch to ~1e-15.
     mne_tf = pytest.importorskip("mne.time_frequency")
     sfreq, n = 250.0, 500
     x = 10e-6 * rng.standard_normal((4, 15000))
@@ -61,7 +61,7 @@ def test_welch_and_band_power_match_mne_psd_array_welch(rng):
 
 
 def test_scipy_docstring_example_noise_floor_and_tone(rng):
-    # REFERENCES F9: scipy.signal.welch docstring example -- 2 Vrms at 1234 Hz plus
+    # docs/REFERENCES.md F9: scipy.signal.welch docstring example -- 2 Vrms at 1234 Hz plus
     # 0.001 V^2/Hz white noise, fs 10 kHz, 1e5 samples, nperseg 1024.
     fs, n = 10e3, 100_000
     t = np.arange(n) / fs
@@ -93,15 +93,15 @@ def test_bad_welch_parameters_are_refused(kwargs, pattern):
         welch_psd(np.zeros(1000), **kwargs)
 
 
-# -- band power (REFERENCES F10, F11, F14) ---------------------------------------------
+# -- band power (docs/REFERENCES.md F10, F11, F14) ---------------------------------------------
 
 
 def test_band_power_of_sinusoid_is_half_amplitude_squared():
-    # REFERENCES F10: fact of the trade (Oppenheim & Schafer): mean power of A sin is
+    # docs/REFERENCES.md F10: fact of the trade (Oppenheim & Schafer): mean power of A sin is
     # A^2/2; A = 5, 40 Hz, fs 500, nperseg 500, band 38-42 Hz -> 12.5 V^2.
     freqs, psd = welch_psd(_tone(5.0, 40.0, 500.0, 10.0), 500.0, segment=1.0)
     assert band_power(freqs, psd, (38.0, 42.0)) == pytest.approx(12.5, rel=1e-9)
-    # REFERENCES F10 / F12 (Harris 1978): density peak = 12.5 / (ENBW 1.5 bins * 1 Hz)
+    # docs/REFERENCES.md F10 / F12 (Harris 1978): density peak = 12.5 / (ENBW 1.5 bins * 1 Hz)
     assert psd.max() == pytest.approx(12.5 / 1.5, rel=1e-9)
 
 
@@ -111,7 +111,7 @@ def test_band_power_of_sinusoid_is_half_amplitude_squared():
 ])
 def test_band_edges_follow_the_closure(closed, bins):
     # A bin-centred Hann tone puts 1/1.5 of its power in its bin and 0.25/1.5 in each
-    # neighbour (REFERENCES F12: periodic Hann, ENBW 1.5 bins), so band 39-41 Hz picks
+    # neighbour (docs/REFERENCES.md F12: periodic Hann, ENBW 1.5 bins), so band 39-41 Hz picks
     # a known share depending on which edge bins (39 and 41 Hz) belong to it.
     freqs, psd = welch_psd(_tone(5.0, 40.0, 500.0, 10.0), 500.0, segment=1.0)
     expected = 12.5 * sum(bins) / 1.5
@@ -121,7 +121,7 @@ def test_band_edges_follow_the_closure(closed, bins):
 
 def test_bin_on_an_edge_despite_rounding_of_the_grid():
     # 7.999999999999998 Hz must count as the 8 Hz edge (left-closed alpha band starts
-    # at 8 Hz; REFERENCES F14 edge convention, lower edge included).
+    # at 8 Hz; docs/REFERENCES.md F14 edge convention, lower edge included).
     freqs = np.arange(0, 40) * 0.5 + np.where(np.arange(40) == 16, -2e-15, 0.0)
     psd = np.ones(40)
     assert band_power(freqs, psd, (8.0, 13.0)) == pytest.approx(10 * 0.5)
@@ -129,7 +129,7 @@ def test_bin_on_an_edge_despite_rounding_of_the_grid():
 
 
 def test_parseval_density_integrates_to_variance(rng):
-    # REFERENCES F11: Parseval's theorem (Oppenheim & Schafer; from memory, recomputed
+    # docs/REFERENCES.md F11: Parseval's theorem (Oppenheim & Schafer; from memory, recomputed
     # there): white noise sd 3, 200000 samples, fs 500, nperseg 1000 -> within 1 %.
     x = 3.0 * rng.standard_normal(200_000)
     freqs, psd = welch_psd(x, 500.0, segment=2.0)
@@ -138,7 +138,7 @@ def test_parseval_density_integrates_to_variance(rng):
 
 
 def test_eyes_closed_over_eyes_open_alpha_ratio(rng):
-    # REFERENCES F15: Berger 1929; Barry et al. 2007 -- fs 250 Hz, 60 s, 20 uV vs 20/3 uV
+    # docs/REFERENCES.md F15: Berger 1929; Barry et al. 2007 -- fs 250 Hz, 60 s, 20 uV vs 20/3 uV
     # 10 Hz alpha, nperseg 500: ratio 9 noise-free; with 5 uV white noise 8.3-9.0 over
     # 20 seeds (recomputed there); alpha peak in 9.5-10.5 Hz.
     closed_eyes, open_eyes = _tone(20e-6, 10.0, 250.0, 60.0), _tone(20e-6 / 3, 10.0, 250.0, 60.0)
@@ -176,7 +176,7 @@ def test_bad_band_arguments_are_refused(call, error, pattern):
         call(np.arange(50) * 0.5, np.ones(50))
 
 
-# -- SNR against neighbours (REFERENCES F25) --------------------------------------------
+# -- SNR against neighbours (docs/REFERENCES.md F25) --------------------------------------------
 
 
 def _noise_spectra(rng, n_draws, n_segments=1):
@@ -186,7 +186,7 @@ def _noise_spectra(rng, n_draws, n_segments=1):
 
 
 def test_snr_null_mean_and_f_distribution(rng):
-    # REFERENCES F25: Dobie & Wilson 1996; mne frequency-tagging tutorial -- under noise
+    # docs/REFERENCES.md F25: Dobie & Wilson 1996; mne frequency-tagging tutorial -- under noise
     # SNR ~ F(2, 2K), mean 2K/(2K-2) = 1.2 for K = 6 (3 + 3 neighbours, skip 1).
     freqs, psd = _noise_spectra(rng, 20000)
     snr, p = snr_neighbours(freqs, psd, 40.0, n_neighbours=3, skip=1)
@@ -197,14 +197,14 @@ def test_snr_null_mean_and_f_distribution(rng):
 
 
 def test_snr_of_averaged_periodograms_follows_wider_f_law(rng):
-    # REFERENCES F25: averages of M independent periodograms -> F(2M, 2MK).
+    # docs/REFERENCES.md F25: averages of M independent periodograms -> F(2M, 2MK).
     freqs, psd = _noise_spectra(rng, 5000, n_segments=4)
     snr, _ = snr_neighbours(freqs, psd, 40.0, n_averages=4)
     assert scipy.stats.kstest(snr, scipy.stats.f(8, 48).cdf).pvalue > 0.01
 
 
 def test_snr_p_value_reference_points():
-    # REFERENCES F25: scipy.stats.f(2, 12).sf(10) = 0.00278, sf(30) = 2.14e-5.
+    # docs/REFERENCES.md F25: scipy.stats.f(2, 12).sf(10) = 0.00278, sf(30) = 2.14e-5.
     freqs = np.arange(20) * 1.0
     power = np.ones((2, 20))
     power[:, 10] = [10.0, 30.0]
@@ -214,7 +214,7 @@ def test_snr_p_value_reference_points():
 
 
 def test_strong_40hz_tone_is_detected(rng):
-    # REFERENCES F25: a strong synthetic 40 Hz tone gives p < 1e-4.
+    # docs/REFERENCES.md F25: a strong synthetic 40 Hz tone gives p < 1e-4.
     x = _tone(1.0, 40.0, 500.0, 2.0) + rng.standard_normal(1000)
     freqs, psd = welch_psd(x, 500.0, segment=2.0, window="boxcar")
     snr, p = snr_neighbours(freqs, psd, 40.0)

@@ -22,7 +22,7 @@ def data():
 
 @pytest.mark.parametrize("reference", ["average", "linked-mastoids", ("Cz",), ("TP9", "TP10")])
 def test_rereferencing_is_linear(data, reference):
-    # REFERENCES F19: reref(dev) - reref(std) == reref(dev - std) to 1e-12 (linearity).
+    # docs/REFERENCES.md F19: reref(dev) - reref(std) == reref(dev - std) to 1e-12 (linearity).
     rng = np.random.default_rng(1)
     dev, std = data, rng.normal(0, 10e-6, data.shape)
     a, b, d = _raw(dev), _raw(std), _raw(dev - std)
@@ -60,7 +60,7 @@ def test_missing_reference_channel_is_a_one_line_error(data):
 
 
 def test_mastoid_polarity_inverts_under_average_reference():
-    # REFERENCES F19 (Naatanen et al. 2007): with a generator in auditory cortex the
+    # docs/REFERENCES.md F19 (Naatanen et al. 2007): with a generator in auditory cortex the
     # mismatch response is negative fronto-centrally and positive at the mastoids under an
     # average (or nose) reference; a linked-mastoid reference absorbs it (mastoids read 0).
     pattern = np.array([-1.0, -1.0, -0.8, -0.2, 0.6, 0.6])[:, None] * np.ones((1, 10)) * 1e-6

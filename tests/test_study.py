@@ -48,7 +48,7 @@ def test_group_table_has_site_and_group_columns(group):
 
 
 def test_comparison_mismatch_is_smaller_than_control(group):
-    # Ground truth of the synthetic scenario (SCENARIO.md): about 40 % smaller mismatch.
+    # Ground truth of the synthetic scenario (docs/SCENARIO.md): about 40 % smaller mismatch.
     mmn = _value(group, "mismatch_mean_amplitude")
     control = mmn[mmn.group == "control"].value.mean()
     comparison = mmn[mmn.group == "comparison"].value.mean()
@@ -57,7 +57,7 @@ def test_comparison_mismatch_is_smaller_than_control(group):
 
 
 def test_eyes_closed_alpha_exceeds_eyes_open_in_every_recording(group):
-    # Berger effect (REFERENCES F15): posterior alpha larger with eyes closed.
+    # Berger effect (docs/REFERENCES.md F15): posterior alpha larger with eyes closed.
     closed = _value(group, "band_power_alpha_eyes_closed_posterior").value
     opened = _value(group, "band_power_alpha_eyes_open_posterior").value
     assert len(closed) == 6
@@ -72,7 +72,7 @@ def test_itpc_during_trains_is_high_in_controls_and_above_prestimulus(group):
     assert (controls.value > 0.3).all()
     # "Clearly above": in controls at least twice the pre-stimulus value, and in every
     # recording more than 0.1 above it; with ~40 trials the null ITPC of one channel is
-    # about sqrt(pi/(4N)) = 0.14 (REFERENCES F2), and averaging over the region lowers it.
+    # about sqrt(pi/(4N)) = 0.14 (docs/REFERENCES.md F2), and averaging over the region lowers it.
     assert (controls.value > 2 * before[controls.index]).all()
     assert (during.value - before > 0.1).all()
 
@@ -115,7 +115,7 @@ def test_provenance_records_inputs_definitions_versions_and_filter(processed_stu
     assert all(len(h) == 64 for h in prov["inputs_sha256"].values())
     assert {"paradigm", "feature_sets", "site"} <= set(prov["definitions"])
     assert prov["versions"]["heschl"] and prov["versions"]["mne"]
-    # REFERENCES F26 (Picton et al. 2000): filter type, cut-offs and their definition,
+    # docs/REFERENCES.md F26 (Picton et al. 2000): filter type, cut-offs and their definition,
     # causality, sampling rate, reference, artefact criteria, trials after rejection.
     filt = prov["steps"]["clean"]["filter"]
     assert {"type", "low_cutoff_hz", "high_cutoff_hz", "cutoff_definition", "causality",
@@ -220,14 +220,14 @@ def _oddball_only(text, root):
     ("band_power_beta_eyes_open_posterior", -1),
 ])
 def test_group_effects_of_the_scenario_have_the_right_sign(group, feature, sign):
-    # Ground truth of the synthetic scenario (SCENARIO.md), invented values.
+    # Ground truth of the synthetic scenario (docs/SCENARIO.md), invented values.
     rows = _value(group, feature)
     difference = rows[rows.group == "comparison"].value.mean() - rows[rows.group == "control"].value.mean()
     assert np.sign(difference) == sign, (feature, difference)
 
 
 def test_mismatch_inverts_at_the_mastoids_under_average_reference(group):
-    # REFERENCES F19 (Naatanen et al. 2007): negative fronto-centrally, positive at mastoids.
+    # docs/REFERENCES.md F19 (Naatanen et al. 2007): negative fronto-centrally, positive at mastoids.
     assert (_value(group, "mismatch_mean_amplitude").value < 0).all()
     assert (_value(group, "mismatch_mean_amplitude_mastoid").value > 0).all()
 
@@ -283,7 +283,7 @@ assert "mismatch" in list(ds["signal"].values) and ds.attrs["participant_id"].st
 assert len(ds.attrs["input_key"]) == 64
 c = xr.open_dataset({str(csd)!r})
 m = c["real"].values + 1j * c["imag"].values
-assert abs(m - m.conj().swapaxes(-1, -2)).max() <= 1e-12 * abs(m).max()  # Hermitian (REFERENCES F37)
+assert abs(m - m.conj().swapaxes(-1, -2)).max() <= 1e-12 * abs(m).max()  # Hermitian (docs/REFERENCES.md F37)
 assert {{"ci_low", "ci_high", "se", "reliability"}} <= set(features.columns)
 print("ok")
 """
@@ -330,7 +330,7 @@ def test_blinks_are_removed_from_kept_epochs(processed_study, truth):
 
 
 def test_mastoid_inversion_is_a_qc_metric(processed_study):
-    # REFERENCES F19: under the average reference the mismatch inverts at the mastoids.
+    # docs/REFERENCES.md F19: under the average reference the mismatch inverts at the mastoids.
     study, _ = processed_study
     for recording in discover(study):
         if recording.paradigm != "oddball" or recording.datatype != "eeg":

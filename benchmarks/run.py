@@ -27,7 +27,8 @@ from pathlib import Path
 _ONE = """
 import json, resource, sys, time
 from heschl.config import load_study
-from heschl.pipeline import discover, process_recording
+from heschl.inputs import discover
+from heschl.pipeline import process_recording
 study = load_study(sys.argv[1])
 r = next(r for r in discover(study) if r.site == sys.argv[2] and r.paradigm == "oddball")
 t = time.perf_counter()

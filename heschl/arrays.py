@@ -39,13 +39,13 @@ import xarray as xr
 
 from .config import DESIGNS
 from .errors import DefinitionError, InputDataError, did_you_mean, problem
-from .features import N_CYCLES
+from .features import N_CYCLES, spectrum_of
 from .numeric.crossspectra import cross_spectra
 from .numeric.phase import evoked_power, itpc
 from .numeric.spectra import welch_psd
 from .sensors import SI
 
-__all__ = ["ARRAY_SUFFIXES", "flat_attributes", "model_arrays", "write_netcdf"]
+__all__ = ["ARRAY_SUFFIXES", "flat_attributes", "model_arrays", "recording_arrays", "write_netcdf"]
 
 #: BIDS-derivatives suffix of each dataset: ``<stem>_desc-<name>_<suffix>.nc``.
 ARRAY_SUFFIXES = {"waveforms": "erp", "itpc": "tfr", "spectra": "psd", "csd": "csd"}
@@ -365,3 +365,50 @@ def _csd(where, source, picks, names, settings):
 def _welch_attributes(spec):
     return {"welch_segment_s": float(spec["segment"]), "welch_overlap": float(spec["overlap"]),
             "welch_window": _WINDOW}
+
+
+def recording_arrays(analysis, source, recording, key, definitions):
+    """The model-ready arrays of one recording, with its provenance as attributes.
+
+    Parameters
+    ----------
+    analysis : heschl.config.Analysis
+    source : heschl.features.Source
+    recording : heschl.inputs.Recording
+    key : str
+        The recording's input key.
+    definitions : dict
+        The resolved definitions (hashed into ``definitions_sha256``).
+    """
+    import hashlib
+
+    from . import __version__
+
+    paradigm = analysis.paradigm
+    kwargs = {}
+    if paradigm.design == "steady-state" and paradigm.stimulation.get("frequency"):
+        kwargs["stimulation_frequency"] = paradigm.stimulation["frequency"]
+    if paradigm.design == "resting":
+        spec = spectrum_of(analysis)
+        low, high = paradigm.cleaning.pass_band
+        kwargs.update(spectrum=spec, csd=dict(spec, fmin=low, fmax=high))
+    provenance = {"heschl_version": __version__, "participant_id": recording.participant_id,
+                  "site": recording.site, "group": recording.group, "paradigm": recording.paradigm,
+                  "input_key": key,
+                  "definitions_sha256": hashlib.sha256(json.dumps(definitions, sort_keys=True,
+                                                                  default=str).encode()).hexdigest()}
+    arrays = model_arrays(source, design=paradigm.design, provenance=provenance, **kwargs)
+    if "csd" in arrays:
+        arrays["csd"] = _with_coherence(arrays["csd"])
+    return arrays
+
+
+def _with_coherence(dataset):
+    """Add magnitude-squared coherence, derived from the cross-spectral matrices."""
+    from .numeric.crossspectra import coherence
+
+    matrices = dataset["real"].values + 1j * dataset["imag"].values
+    values = coherence(matrices)
+    out = dataset.assign(coherence=(dataset["real"].dims, np.asarray(values, dtype=float)))
+    out["coherence"].attrs.update(units="1", long_name="magnitude-squared coherence |S_ij|^2 / (S_ii S_jj)")
+    return out

@@ -13,7 +13,6 @@ import logging
 import os
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from multiprocessing import get_context
-from pathlib import Path
 
 from .errors import HeschlError
 
@@ -37,10 +36,10 @@ def _limit_threads():
 def up_to_date(study, recording, hashes):
     """True when every output exists and provenance names the same input key.
 
-    ``hashes`` are the recording's current input hashes (:func:`heschl.pipeline.input_hashes`).
+    ``hashes`` are the recording's current input hashes (:func:`heschl.inputs.input_hashes`).
     """
+    from .inputs import definitions_of, input_key
     from .outputs import recording_paths
-    from .pipeline import definitions_of, input_key
 
     paths = recording_paths(study.output, recording)
     if not all(p.exists() for p in paths.values()):
@@ -60,8 +59,9 @@ def process_and_write(study, recording, force=False):
 
     Never raises for a problem with the recording: the error becomes part of the summary.
     """
+    from .inputs import analysis_of, input_hashes
     from .outputs import write_recording
-    from .pipeline import input_hashes, process_recording
+    from .pipeline import process_recording
     from .report import render_recording
 
     summary = {"site": recording.site, "participant_id": recording.participant_id,
@@ -72,7 +72,7 @@ def process_and_write(study, recording, force=False):
             summary["status"] = "unchanged"
             return summary
         result = process_recording(study, recording, hashes)
-        design = next(a.paradigm.design for a in study.analyses if a.paradigm.name == recording.paradigm)
+        design = analysis_of(study, recording).paradigm.design
         write_recording(study.output, recording, result, render_recording(recording, result, design))
         summary["verdict"] = result["qc"]["verdict"]
     except HeschlError as exc:
@@ -105,8 +105,8 @@ def run_study(study, *, jobs=1, force=False, cluster=None):
     summaries : list of dict
         One per recording, with ``status`` "done", "unchanged" or "failed".
     """
-    from .outputs import write_dataset_description
-    from .pipeline import discover
+    from .inputs import discover
+    from .outputs import write_dataset_description, write_group_outputs
 
     recordings = discover(study)
     write_dataset_description(study.output, study.name)
@@ -140,7 +140,7 @@ CONNECT_TIMEOUT = "20s"  # how long to wait for a Dask scheduler
 
 def _size(recording):
     """Bytes of a recording's input files (0 when unreadable: the task will say why)."""
-    from .pipeline import recording_files
+    from .inputs import recording_files
 
     try:
         return sum(f.stat().st_size for f in recording_files(recording.path) if f.exists())
@@ -201,39 +201,6 @@ def _run_on_dask(study, recordings, force, cluster, jobs):
             own.close()
 
 
-def write_group_outputs(study, recordings, summaries):
-    """Group feature table, QC table and study page, read back from the written files."""
-    import pandas as pd
-
-    from .group import group_summary
-    from .outputs import recording_paths, write_group
-    from .report import render_study
-
-    tables, qc_rows = [], []
-    for recording, summary in zip(recordings, summaries):
-        if summary["status"] == "failed":
-            continue
-        paths = recording_paths(study.output, recording)
-        table = pd.read_csv(paths["features"], sep="\t", na_values=["n/a"], keep_default_na=False)
-        table.insert(0, "paradigm", recording.paradigm)
-        table.insert(0, "group", recording.group)
-        table.insert(0, "site", recording.site)
-        table.insert(0, "participant_id", recording.participant_id)
-        tables.append(table)
-        qc = json.loads(paths["qc"].read_text(encoding="utf-8"))
-        qc_rows.append({"participant_id": recording.participant_id, "site": recording.site,
-                        "group": recording.group, "paradigm": recording.paradigm, "verdict": qc["verdict"],
-                        "flags": " | ".join(f["message"] for f in qc["flags"]),
-                        "report": os.path.relpath(paths["report"], Path(study.output) / "group")})
-    table = pd.concat(tables, ignore_index=True) if tables else pd.DataFrame()
-    qc_table = pd.DataFrame(qc_rows)
-    failures = [s for s in summaries if s["status"] == "failed"]
-    summary = group_summary(table) if len(table) and set(table["group"]) >= {"control", "comparison"} else None
-    write_group(study.output, table, qc_table, render_study(study.name, table, qc_table, failures, summary),
-                summary)
-    return table, qc_table
-
-
 def check_study(study):
     """What each recording holds, without processing: channels, duration, markers.
 
@@ -242,18 +209,19 @@ def check_study(study):
     rows : list of dict
         One per recording; ``error`` is set when the recording cannot be used as defined.
     """
-    from .pipeline import discover
+    from .inputs import discover
 
     return [_check_one(study, r) for r in discover(study)]
 
 
 def _check_one(study, recording):
     from .harmonise import canonical_channel_names, extract_markers
+    from .inputs import analysis_of
 
     import mne
 
     site = study.sites[recording.site]
-    paradigm = next(a.paradigm for a in study.analyses if a.paradigm.name == recording.paradigm)
+    paradigm = analysis_of(study, recording).paradigm
     row = {"site": recording.site, "participant_id": recording.participant_id, "paradigm": recording.paradigm,
            "file": os.path.relpath(recording.path), "error": None}
     try:

@@ -16,7 +16,8 @@ from .numeric.phase import (evoked_power, induced_power, itpc, morlet_transform,
 from .numeric.rhythms import aperiodic_fit, peak_frequency
 from .numeric.spectra import band_power, snr_neighbours, welch_psd
 
-__all__ = ["MEASURES", "UNIT_SCALE", "Source", "compute_features"]
+__all__ = ["MEASURES", "UNIT_SCALE", "RELIABILITY_COLUMNS", "Source", "applicable", "compute_features",
+           "reliability_columns", "spectrum_of"]
 
 log = logging.getLogger(__name__)
 
@@ -123,6 +124,17 @@ class Source:
             self._cache[key] = (freqs, per_trial[rows].mean(axis=0))
         return self._cache[key]
 
+    def trials(self, condition):
+        """The trials of a condition in this Source, shape (n, n_channels, n_times), SI unit."""
+        trials = self._shared["data"][condition]
+        return trials if self._index is None else trials[self._index[condition]]
+
+    def memo(self, key, compute):
+        """``compute()`` once per key for this Source (its trials), then the cached result."""
+        if key not in self._cache:
+            self._cache[key] = compute()
+        return self._cache[key]
+
     def window_mask(self, window):
         return (self.times >= window[0]) & (self.times <= window[1])
 
@@ -226,11 +238,12 @@ def _rayleigh_p(m, source, regions, bands):
 def _evoked_spectrum(m, source, regions):
     """Periodogram of the region-mean average in the window (rectangular window), V^2."""
     p = m.params
-    key = ("evoked-spectrum", p["signal"], p["region"], tuple(p["window"]))
-    if key not in source._cache:
+
+    def compute():
         wave = _region(source, regions, p["region"], source.average(p["signal"]))[source.window_mask(p["window"])]
-        source._cache[key] = (np.fft.rfftfreq(wave.size, 1.0 / source.sfreq), np.abs(np.fft.rfft(wave)) ** 2)
-    return source._cache[key]
+        return np.fft.rfftfreq(wave.size, 1.0 / source.sfreq), np.abs(np.fft.rfft(wave)) ** 2
+
+    return source.memo(("evoked-spectrum", p["signal"], p["region"], tuple(p["window"])), compute)
 
 
 def _snr(m, source, regions, bands):
@@ -254,10 +267,8 @@ def _peak_frequency(m, source, regions, bands):
 
 
 def _aperiodic(m, source, regions):
-    key = ("aperiodic", m.params["signal"], m.params["region"])
-    if key not in source._cache:
-        source._cache[key] = aperiodic_fit(*_region_spectrum(m, source, regions))
-    return source._cache[key]
+    return source.memo(("aperiodic", m.params["signal"], m.params["region"]),
+                       lambda: aperiodic_fit(*_region_spectrum(m, source, regions)))
 
 
 def _aperiodic_exponent(m, source, regions, bands):
@@ -317,67 +328,75 @@ def _evaluate(measures, source, feature_set):
     return np.asarray(out, dtype=float)
 
 
-def resampled_values(measures, source, feature_set, conditions, seed=0):
-    """Bootstrap, odd/even and random-split values of every measure.
+#: Reliability columns of every feature row.
+RELIABILITY_COLUMNS = ("ci_low", "ci_high", "se", "half_odd", "half_even", "reliability")
 
-    Trials are resampled within each condition, independently (deviants and standards of
-    a difference wave each keep their own count). The same draws serve every measure.
+
+def reliability_columns(measures, source, feature_set, values, seed=0):
+    """Interval, standard error and subject-level reliability of every measure.
+
+    The array functions of :mod:`heschl.numeric.reliability` resample trial *indices*
+    within each condition, independently (deviants and standards of a difference wave
+    each keep their own count); the score of a resample is every measure of a
+    :meth:`Source.subset`, which reuses the per-trial transforms.
+
+    * ``ci_low``/``ci_high``: percentile bootstrap interval over trials
+      (`bootstrap_interval`).
+    * ``se``: the standardized measurement error (Luck et al. 2021): analytic for a mean
+      amplitude over a region mean (`sme_mean_amplitude`, `sme_difference` for a
+      difference wave; equals mne's ``compute_sme``), the bootstrap SD otherwise.
+    * ``half_odd``/``half_even``: the value from odd and from even trials of each
+      condition (equal halves; `split_half_recording` with "odd-even"); the group
+      summary turns them into the Spearman-Brown-corrected cohort split-half.
+    * ``reliability``: subject-level, from random half splits (`split_half_recording`):
+      how well the value is told apart from zero; NaN for kinds without a meaningful
+      zero (latencies, frequencies, exponents, p-values, ratios, RMS over channels).
 
     Returns
     -------
-    boot : ndarray, shape (n_boot, n_measures)
-    odd, even : ndarray, shape (n_measures,)
-    halves : ndarray, shape (n_splits, 2, n_measures)
+    columns : list of dict
+        One dict of :data:`RELIABILITY_COLUMNS` per measure.
     """
+    from .numeric.reliability import bootstrap_interval, split_half_recording
+
     settings = feature_set.reliability
-    rng = np.random.default_rng(seed)
-    sizes = {c: source.count(c) for c in conditions}
-    full = {c: np.arange(n) for c, n in sizes.items()}
-    boot = np.array([_evaluate(measures, source.subset({c: rng.integers(0, n, n) for c, n in sizes.items()}),
-                               feature_set) for _ in range(settings["bootstrap"])])
-    odd = _evaluate(measures, source.subset({c: i[0::2] for c, i in full.items()}), feature_set)
-    even = _evaluate(measures, source.subset({c: i[1::2] for c, i in full.items()}), feature_set)
-    halves = []
-    for _ in range(settings["splits"]):
-        perm = {c: rng.permutation(n) for c, n in sizes.items()}
-        first = {c: p[: len(p) // 2] for c, p in perm.items()}
-        second = {c: p[len(p) // 2: 2 * (len(p) // 2)] for c, p in perm.items()}
-        halves.append([_evaluate(measures, source.subset(first), feature_set),
-                       _evaluate(measures, source.subset(second), feature_set)])
-    return boot, odd, even, np.asarray(halves)
+    conditions = sorted({c for m in measures for s in _signals_of(m) for c in source.conditions_of(s)})
+    indices = [np.arange(source.count(c)) for c in conditions]
+
+    def score(*picked):
+        return _evaluate(measures, source.subset(dict(zip(conditions, picked))), feature_set)
+
+    boot_seed, split_seed = np.random.SeedSequence(seed).spawn(2)
+    low, high, boot_sd = bootstrap_interval(None, score, n_boot=settings["bootstrap"], level=settings["level"],
+                                            seed=np.random.default_rng(boot_seed), groups=indices)
+    odd_even = split_half_recording(None, score, method="odd-even", groups=indices)["halves"][0]
+    splits = split_half_recording(None, score, method="random", n_splits=settings["splits"],
+                                  seed=np.random.default_rng(split_seed), groups=indices)
+    out = []
+    for k, m in enumerate(measures):
+        sme = _analytic_sme(m, source, feature_set)
+        # An RMS over channels is positive even for pure noise: "apart from zero" means nothing.
+        no_zero = m.kind in NO_ZERO_KINDS or m.params.get("combine") == "rms" or not np.isfinite(values[k])
+        out.append({"ci_low": float(np.atleast_1d(low)[k]), "ci_high": float(np.atleast_1d(high)[k]),
+                    "se": float(np.atleast_1d(boot_sd)[k]) if sme is None else sme,
+                    "half_odd": float(odd_even[0, k]), "half_even": float(odd_even[1, k]),
+                    "reliability": float("nan") if no_zero else float(np.atleast_1d(splits["reliability"])[k])})
+    return out
 
 
-def _reliability_columns(m, value, boot, odd, even, halves, settings):
-    """Interval, standard error and subject-level reliability of one value.
+def _analytic_sme(m, source, feature_set):
+    """SD of the single-trial window means over sqrt(N) (ddof=0), in the reported unit, for a
+    mean amplitude over a region mean; None for any other measure."""
+    from .numeric.reliability import sme_difference, sme_mean_amplitude
 
-    * ``ci_low``/``ci_high``: bootstrap percentile interval over trials.
-    * ``se``: bootstrap standard deviation, the bootstrapped standardized measurement
-      error (Luck et al. 2021); for a mean amplitude it approximates the analytic SME.
-    * ``half_odd``/``half_even``: the value from odd and from even trials; the group
-      summary turns them into the Spearman-Brown-corrected cohort split-half.
-    * ``reliability``: subject-level, ``t / (t + se_split**2)`` with ``t = max(value**2 -
-      se_split**2, 0)`` and ``se_split`` from random half splits (idea of Clayson, Brush &
-      Hajcak 2021): how well the value is told apart from zero; NaN for kinds without a
-      meaningful zero (latencies, frequencies, exponents, p-values, ratios).
-    """
-    level = settings["level"]
-    finite = boot[np.isfinite(boot)]
-    if finite.size < 10:
-        low = high = se = float("nan")
-    else:
-        low, high = np.percentile(finite, [50 * (1 - level), 100 - 50 * (1 - level)])
-        se = float(np.std(finite, ddof=1))
-    diff = halves[:, 0] - halves[:, 1]
-    diff = diff[np.isfinite(diff)]
-    reliability = float("nan")
-    # An RMS over channels is positive even for pure noise: "apart from zero" means nothing.
-    no_zero = m.kind in NO_ZERO_KINDS or m.params.get("combine") == "rms"
-    if not no_zero and diff.size and np.isfinite(value):
-        se_split = float(np.sqrt(np.mean(diff ** 2)) / 2)
-        t = max(value ** 2 - se_split ** 2, 0.0)
-        reliability = t / (t + se_split ** 2) if t + se_split ** 2 > 0 else float("nan")
-    return {"ci_low": float(low), "ci_high": float(high), "se": se, "half_odd": float(odd),
-            "half_even": float(even), "reliability": reliability}
+    if m.kind != "mean-amplitude" or m.params.get("combine", "mean") != "mean":
+        return None
+    smes = []
+    for c in source.conditions_of(m.params["signal"]):
+        trials = region_mean(source.trials(c), source.ch_names, feature_set.regions[m.params["region"]])
+        smes.append(sme_mean_amplitude(mean_amplitude(trials, source.times, m.params["window"])))
+    sme = smes[0] if len(smes) == 1 else sme_difference(*smes)
+    return float(sme) * UNIT_SCALE[m.unit]
 
 
 def compute_features(feature_set, source, min_trials, seed=0):
@@ -398,10 +417,9 @@ def compute_features(feature_set, source, min_trials, seed=0):
     values = _evaluate(measures, source, feature_set)
     usable = [all(source.count(c) >= 2 for s in _signals_of(m) for c in source.conditions_of(s))
               for m in measures]
-    conditions = sorted({c for m in measures for s in _signals_of(m) for c in source.conditions_of(s)})
-    resampled = None
-    if any(usable):
-        resampled = resampled_values(measures, source, feature_set, conditions, seed)
+    reliable = [m for m, ok in zip(measures, usable) if ok]
+    columns = iter(reliability_columns(reliable, source, feature_set, values[np.asarray(usable)], seed)
+                   if reliable else ())
     rows = []
     for k, m in enumerate(measures):
         signals = _signals_of(m)
@@ -409,11 +427,7 @@ def compute_features(feature_set, source, min_trials, seed=0):
         value = values[k] if min(source.n_trials(s) for s in signals) > 0 else float("nan")
         if not np.isfinite(value):
             flags.append("could not be computed")
-        extra = dict.fromkeys(("ci_low", "ci_high", "se", "half_odd", "half_even", "reliability"), float("nan"))
-        if usable[k] and resampled is not None:
-            boot, odd, even, halves = resampled
-            extra = _reliability_columns(m, value, boot[:, k], odd[k], even[k], halves[:, :, k],
-                                         feature_set.reliability)
+        extra = next(columns) if usable[k] else dict.fromkeys(RELIABILITY_COLUMNS, float("nan"))
         low_reliability = (bool(extra["reliability"] < feature_set.reliability["minimum"])
                            if np.isfinite(extra["reliability"]) else None)
         rows.append({"feature": m.name, "value": float(value), "unit": m.unit, "kind": m.kind,
@@ -474,3 +488,71 @@ def _describe(m):
     if p.get("band"):
         return f"band {p['band']}"
     return ""
+
+
+#: Welch settings when no feature set of a resting paradigm names its own.
+DEFAULT_SPECTRUM = {"segment": 2.0, "overlap": 0.5}
+
+
+def spectrum_of(analysis):
+    """The Welch settings of an analysis: those of its first feature set."""
+    return next((fs.spectrum for fs in analysis.feature_sets), DEFAULT_SPECTRUM)
+
+
+def applicable(analysis, channels, where, types=None):
+    """The analysis restricted to the feature sets written for this recording's sensors.
+
+    A feature set whose regions name only 10-05 electrode positions is for EEG; any other
+    is for MEG (its regions name sensors of an MEG system). A set for a sensor modality the
+    recording lacks (an EEG set on an MEG recording) is left out, with the reason. A set
+    for a modality the recording has must find all of its region channels: a missing one
+    is an error, never a silently smaller region.
+
+    Parameters
+    ----------
+    analysis : heschl.config.Analysis
+    channels : list of str
+        The recording's data channels after harmonising.
+    where : str
+        The file, for messages.
+    types : set of str or None
+        Sensor types present ("eeg", "mag", "grad"); None means EEG only.
+
+    Returns
+    -------
+    analysis : heschl.config.Analysis
+        With only the feature sets that apply.
+    skipped : dict
+        Feature set name -> why it does not apply.
+    """
+    import dataclasses
+
+    from .errors import InputDataError, problem
+    from .harmonise import standard_name_map
+
+    types = {"eeg"} if types is None else set(types)
+    electrodes = set(standard_name_map().values())
+    present, used, skipped = set(channels), [], {}
+    for fs in analysis.feature_sets:
+        wanted = {c for names in fs.regions.values() for c in names}
+        modality = "eeg" if wanted <= electrodes else "meg"
+        has = "eeg" in types if modality == "eeg" else bool(types & {"mag", "grad"})
+        missing = sorted(wanted - present)
+        if not missing:
+            used.append(fs)
+        elif not has:
+            skipped[fs.name] = (f"its regions name {modality.upper()} channels ({', '.join(sorted(wanted)[:4])}"
+                                f"{', ...' if len(wanted) > 4 else ''}) and this recording has no "
+                                f"{modality.upper()} channel")
+        else:
+            raise InputDataError(problem(where, f'lacks channels {", ".join(missing[:6])} of the regions of feature '
+                                         f'set "{fs.name}"', "add channel_aliases for them in the study file or "
+                                         "remove them from the feature set's regions"))
+    if not used:
+        raise InputDataError(problem(where, f'no feature set of paradigm "{analysis.paradigm.name}" reads its '
+                                     f"channels ({'; '.join(f'{k}: {v}' for k, v in skipped.items())})",
+                                     "add a feature set whose regions name this recording's channels"))
+    if skipped:
+        log.info("%s: feature set%s %s not applicable", where, "" if len(skipped) == 1 else "s",
+                 ", ".join(skipped))
+    return dataclasses.replace(analysis, feature_sets=tuple(used)), skipped

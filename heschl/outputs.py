@@ -13,7 +13,7 @@ from pathlib import Path
 from . import __version__
 
 __all__ = ["write_atomic", "recording_paths", "write_recording", "write_dataset_description",
-           "write_group", "FEATURE_COLUMNS", "FEATURE_SIDECAR"]
+           "write_group", "write_group_outputs", "FEATURE_COLUMNS", "FEATURE_SIDECAR"]
 
 FEATURE_COLUMNS = ["feature", "value", "unit", "kind", "signal", "region", "window", "n_trials",
                    "ci_low", "ci_high", "se", "half_odd", "half_even", "reliability", "low_reliability",
@@ -31,9 +31,12 @@ FEATURE_SIDECAR = {
     "ci_low": {"Description": "Lower end of the bootstrap percentile interval (level set in the feature set, default 95 %), "
                          "trials resampled within each condition; unit of value."},
     "ci_high": {"Description": "Upper end of the bootstrap percentile interval; unit of value."},
-    "se": {"Description": "Bootstrap standard deviation of the value: the bootstrapped standardized measurement "
-                     "error (Luck et al. 2021); unit of value."},
-    "half_odd": {"Description": "The value from odd-numbered trials only (for the cohort split-half in group/summary.tsv)."},
+    "se": {"Description": "Standardized measurement error of the value (Luck et al. 2021), unit of value: for a "
+                     "mean amplitude over a region mean the analytic SME, SD of the single-trial window means "
+                     "(ddof=0) over sqrt(N), the two conditions of a difference wave added in quadrature; for "
+                     "every other measure the bootstrap standard deviation (bootstrapped SME)."},
+    "half_odd": {"Description": "The value from odd-numbered trials only, each condition split into equal halves "
+                           "(an odd last trial left out); for the cohort split-half in group/summary.tsv."},
     "half_even": {"Description": "The value from even-numbered trials only."},
     "reliability": {"Description": "Subject-level reliability t/(t+se^2), t = max(value^2 - se^2, 0), se from random "
                                   "half splits (idea of Clayson, Brush & Hajcak 2021): how well the value stands "
@@ -155,3 +158,35 @@ def write_group(output, table, qc_table, report_html=None, summary=None):
     if report_html is not None:
         write_atomic(folder / "report.html", report_html)
     return folder
+
+
+def write_group_outputs(study, recordings, summaries):
+    """Group feature table, QC table and study page, read back from the written files."""
+    import pandas as pd
+
+    from .group import group_summary
+    from .report import render_study
+
+    tables, qc_rows = [], []
+    for recording, summary in zip(recordings, summaries):
+        if summary["status"] == "failed":
+            continue
+        paths = recording_paths(study.output, recording)
+        table = pd.read_csv(paths["features"], sep="\t", na_values=["n/a"], keep_default_na=False)
+        table.insert(0, "paradigm", recording.paradigm)
+        table.insert(0, "group", recording.group)
+        table.insert(0, "site", recording.site)
+        table.insert(0, "participant_id", recording.participant_id)
+        tables.append(table)
+        qc = json.loads(paths["qc"].read_text(encoding="utf-8"))
+        qc_rows.append({"participant_id": recording.participant_id, "site": recording.site,
+                        "group": recording.group, "paradigm": recording.paradigm, "verdict": qc["verdict"],
+                        "flags": " | ".join(f["message"] for f in qc["flags"]),
+                        "report": os.path.relpath(paths["report"], Path(study.output) / "group")})
+    table = pd.concat(tables, ignore_index=True) if tables else pd.DataFrame()
+    qc_table = pd.DataFrame(qc_rows)
+    failures = [s for s in summaries if s["status"] == "failed"]
+    summary = group_summary(table) if len(table) and set(table["group"]) >= {"control", "comparison"} else None
+    write_group(study.output, table, qc_table, render_study(study.name, table, qc_table, failures, summary),
+                summary)
+    return table, qc_table

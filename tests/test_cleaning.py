@@ -111,7 +111,7 @@ def test_blinks_are_found_once_each_on_their_own_side_despite_a_saturation():
     # A blink is a 100-400 uV deflection of the vertical EOG lasting a few hundred ms
     # (common practice, from memory). Here they go negative; one larger positive
     # saturation must not make the detector take the blinks' side lobes for blinks.
-    from heschl.pipeline import blink_peaks
+    from heschl.numeric.blinks import blink_peaks
 
     t = np.arange(int(60 * SFREQ)) / SFREQ
     peaks = np.arange(3.0, 57.0, 4.5)

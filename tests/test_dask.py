@@ -4,7 +4,7 @@ import pytest
 from heschl import batch
 from heschl.errors import InputDataError
 from heschl.outputs import recording_paths
-from heschl.pipeline import discover
+from heschl.inputs import discover
 
 
 def test_a_local_dask_cluster_redoes_only_what_is_missing_and_writes_the_same_files(study_copy):

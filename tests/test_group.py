@@ -297,7 +297,7 @@ def test_site_adjusted_g_with_one_recording_per_cell(rng):
 
 
 def test_round_trip_through_the_written_table(tmp_path, rng):
-    # The table as batch.write_group_outputs writes and reads it: empty flags come back as
+    # The table as outputs.write_group_outputs writes and reads it: empty flags come back as
     # "" and missing values as NaN ("n/a" on disk).
     from heschl.outputs import write_group
 

@@ -10,7 +10,7 @@ from heschl.config import builtin_dir, load_feature_set, load_paradigm
 from heschl.errors import DefinitionError, InputDataError
 from heschl.features import Source, check_units
 from heschl.outputs import recording_paths
-from heschl.pipeline import discover
+from heschl.inputs import discover
 from heschl.segment import reject
 
 
@@ -187,7 +187,7 @@ def test_feature_sets_apply_by_sensor_modality_and_missing_channels_are_errors()
     import dataclasses
 
     from heschl.config import Analysis, FeatureSet
-    from heschl.pipeline import applicable
+    from heschl.features import applicable
 
     fs = FeatureSet("mixed", "oddball", "", "mixed.toml", {"r": ("Fz", "MEG0111")}, {}, {}, ())
     with pytest.raises(InputDataError, match=r'x.fif: lacks channels MEG0111 of the regions of feature set "mixed"'):

@@ -7,7 +7,7 @@ import pytest
 
 from heschl.batch import run_study
 from heschl.outputs import FEATURE_COLUMNS, recording_paths
-from heschl.pipeline import discover
+from heschl.inputs import discover
 from heschl.report import CAUTION
 from heschl.synth.artefacts import blink_course
 
@@ -295,7 +295,7 @@ def test_blinks_are_removed_from_kept_epochs(processed_study, truth):
     """Issue acceptance: residual correlation of kept epochs with the blink source < 0.2."""
     from heschl.clean import clean
     from heschl.harmonise import harmonise, read_raw
-    from heschl.pipeline import _trials
+    from heschl.pipeline import _segment_and_reject
 
     study, _ = processed_study
     t = next(t for t in truth["recordings"] if t["paradigm"] == "oddball" and len(t["blinks_s"]) >= 10
@@ -305,8 +305,9 @@ def test_blinks_are_removed_from_kept_epochs(processed_study, truth):
     paradigm = study.analyses[0].paradigm
     site = study.sites[recording.site]
     raw, markers, record = harmonise(read_raw(recording.path), site, paradigm, study.common_channels, "x")
-    clean(raw, paradigm, where="x", restored=record["restored_reference"], line_frequency=site.line_frequency)
-    data, times, entries, ch_names, _ = _trials(raw, markers, paradigm)
+    cleaning = clean(raw, paradigm, where="x", restored=record["restored_reference"],
+                     line_frequency=site.line_frequency)
+    data, times, entries, ch_names, _ = _segment_and_reject(raw, markers, paradigm, cleaning, "x")
     sfreq = raw.info["sfreq"]
     course = blink_course(t["blinks_s"], raw.n_times, sfreq)
     fp1 = ch_names.index("Fp1")

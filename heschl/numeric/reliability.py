@@ -48,6 +48,10 @@ METHODS = ("odd-even", "random")
 #: (2**22 float64 values = 32 MiB), so long bootstraps of whole epochs fit in memory.
 MAX_BATCH_ELEMENTS = 2 ** 22
 
+#: A resample whose score is undefined (NaN: a subset lacks what the score needs) is left
+#: out; an interval or SD from fewer valid resamples than this is NaN.
+MIN_VALID_RESAMPLES = 10
+
 
 # -- small helpers -------------------------------------------------------------------------
 
@@ -378,7 +382,7 @@ def _recording_halves(n, method, n_splits, rng):
 
 
 def split_half_recording(trials, score_fn, *, method="random", n_splits=200, seed=0,
-                         batched=False, between_var=None):
+                         batched=False, between_var=None, groups=None):
     """Subject-level precision of one recording's score from split halves of its trials.
 
     What it is: an estimate of the standard error of the full-trial score, ``se``, from
@@ -410,10 +414,12 @@ def split_half_recording(trials, score_fn, *, method="random", n_splits=200, see
 
     Parameters
     ----------
-    trials : ndarray, shape (n_trials, ...)
-        One recording's trials, e.g. single-trial window means in V, at least 2.
+    trials : ndarray, shape (n_trials, ...) or None
+        One recording's trials, e.g. single-trial window means in V, at least 2 (None
+        when ``groups`` is given).
     score_fn : callable
-        ``score_fn(subset) -> float or ndarray`` (see the module notes on ``batched``).
+        ``score_fn(subset) -> float or ndarray``, or ``score_fn(*conditions)`` with
+        ``groups`` (see the module notes on ``batched``).
     method : {"random", "odd-even"}, default="random"
         Random halves repeated ``n_splits`` times, or one odd/even split.
     n_splits : int, default=200
@@ -423,6 +429,11 @@ def split_half_recording(trials, score_fn, *, method="random", n_splits=200, see
         Call ``score_fn`` on stacks of subsets.
     between_var : float or None, default=None
         Between-subject true-score variance, unit of the score squared (V**2 for V).
+    groups : sequence of ndarray or None, default=None
+        One trial array per condition (e.g. deviants and standards of a difference
+        wave); each is split into halves independently, and half A of the score is
+        ``score_fn(*(half A of each condition))``. Splits whose half score is NaN are
+        left out of ``difference_sd``.
 
     Returns
     -------
@@ -435,22 +446,27 @@ def split_half_recording(trials, score_fn, *, method="random", n_splits=200, see
     where = "split_half_recording"
     _check_method(method, where)
     n_splits = 1 if method == "odd-even" else _whole(n_splits, where, "n_splits", 1)
-    trials = _trial_array(trials, where)
+    arrays = _conditions(trials, groups, where)
     if between_var is not None and not (np.isfinite(between_var) and between_var >= 0):
         raise DefinitionError(problem(
             where, f"between_var = {between_var!r} is not a finite value >= 0",
             "pass the between-subject true-score variance (unit of the score squared) or "
             "None", key="between_var"))
-    half_a, half_b = _recording_halves(trials.shape[0], method, n_splits,
-                                       np.random.default_rng(seed))
-    a = _score_subsets([trials], [half_a], score_fn, batched, where)
-    b = _score_subsets([trials], [half_b], score_fn, batched, where)
-    everything = np.arange(trials.shape[0])[:, np.newaxis]
-    score = _score_subsets([trials], [everything], score_fn, batched, where)[0]
-    difference_sd = np.sqrt(np.mean((a - b) ** 2, axis=0))
-    se = difference_sd / 2
-    true = np.maximum(score ** 2 - se ** 2, 0.0) if between_var is None else float(between_var)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    rng = np.random.default_rng(seed)
+    halves = [_recording_halves(x.shape[0], method, n_splits, rng) for x in arrays]
+    a = _score_subsets(arrays, [h[0] for h in halves], score_fn, batched, where)
+    b = _score_subsets(arrays, [h[1] for h in halves], score_fn, batched, where)
+    everything = [np.arange(x.shape[0])[:, np.newaxis] for x in arrays]
+    score = _score_subsets(arrays, everything, score_fn, batched, where)[0]
+    # A split whose half score is undefined (NaN) is left out of the difference SD.
+    diff = a - b
+    valid = np.isfinite(diff)
+    n_valid = valid.sum(axis=0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        squares = (np.where(valid, diff, 0.0) ** 2).sum(axis=0)
+        difference_sd = np.where(n_valid > 0, np.sqrt(squares / np.maximum(n_valid, 1)), np.nan)
+        se = difference_sd / 2
+        true = np.maximum(score ** 2 - se ** 2, 0.0) if between_var is None else float(between_var)
         reliability = true / (true + se ** 2)
     return {"halves": np.stack([a, b], axis=1), "score": _plain(score),
             "difference_sd": _plain(difference_sd), "se": _plain(se),
@@ -517,17 +533,45 @@ def bootstrap_interval(trials, score_fn, *, n_boot=1000, level=0.95, seed=0, gro
     -------
     low, high : float or ndarray, shape (...), unit of the score
         The (1 - level)/2 and (1 + level)/2 quantiles of the bootstrap scores (linear
-        interpolation).
+        interpolation). Resamples with an undefined (NaN) score are left out; with fewer
+        than :data:`MIN_VALID_RESAMPLES` valid ones the result is NaN.
     boot_sd : float or ndarray, shape (...), unit of the score
         SD (ddof=1) of the bootstrap scores: the bootstrap standard error.
     """
-    where = "bootstrap_interval"
+    return _bootstrap_summary(trials, score_fn, n_boot, level, seed, groups, batched, "bootstrap_interval")
+
+
+def _bootstrap_summary(trials, score_fn, n_boot, level, seed, groups, batched, where):
+    """Interval and SD of the bootstrap scores, leaving undefined (NaN) resamples out."""
     if not 0 < float(level) < 1:
         raise DefinitionError(problem(where, f"level = {level!r} is outside (0, 1)",
                                       "pass a coverage such as 0.95", key="level"))
     scores = _bootstrap_scores(trials, score_fn, n_boot, seed, groups, batched, where)
-    low, high = np.quantile(scores, [(1 - level) / 2, (1 + level) / 2], axis=0)
-    return _plain(low), _plain(high), _plain(scores.std(axis=0, ddof=1))
+    valid = np.isfinite(scores)
+    enough = valid.sum(axis=0) >= min(MIN_VALID_RESAMPLES, scores.shape[0])
+    with np.errstate(invalid="ignore"):
+        filled = np.where(valid, scores, np.nan)
+        low, high = (np.where(enough, q, np.nan) for q in _nan_quantiles(filled, level))
+        sd = np.where(enough, _nan_sd(filled), np.nan)
+    return _plain(low), _plain(high), _plain(sd)
+
+
+def _nan_quantiles(scores, level):
+    """The (1 - level)/2 and (1 + level)/2 quantiles over axis 0, leaving NaN out."""
+    out = []
+    for q in ((1 - level) / 2, (1 + level) / 2):
+        columns = [np.quantile(c[np.isfinite(c)], q) if np.isfinite(c).any() else np.nan
+                   for c in scores.reshape(scores.shape[0], -1).T]
+        out.append(np.asarray(columns, dtype=float).reshape(scores.shape[1:]))
+    return out
+
+
+def _nan_sd(scores):
+    """SD (ddof=1) over axis 0 of the finite values; NaN with fewer than 2."""
+    n = np.isfinite(scores).sum(axis=0)
+    mean = np.nansum(scores, axis=0) / np.maximum(n, 1)
+    ss = np.nansum((scores - mean) ** 2, axis=0)
+    return np.where(n >= 2, np.sqrt(ss / np.maximum(n - 1, 1)), np.nan)
 
 
 def bootstrap_sme(trials, score_fn, *, n_boot=1000, seed=0, groups=None, batched=False):
@@ -541,8 +585,7 @@ def bootstrap_sme(trials, score_fn, *, n_boot=1000, seed=0, groups=None, batched
     -------
     sme : float or ndarray, shape (...), unit of the score
     """
-    scores = _bootstrap_scores(trials, score_fn, n_boot, seed, groups, batched, "bootstrap_sme")
-    return _plain(scores.std(axis=0, ddof=1))
+    return _bootstrap_summary(trials, score_fn, n_boot, 0.95, seed, groups, batched, "bootstrap_sme")[2]
 
 
 def sme_mean_amplitude(window_means, ddof=0):

@@ -1,0 +1,160 @@
+"""Finding a study's recordings and what determines their outputs.
+
+Discovery (file patterns per site and paradigm), the participants table, a recording's
+companion files, their content hashes and the input key: one hash of the input bytes,
+the resolved definitions, the package version and :data:`PIPELINE_REVISION`. A
+recording whose provenance names the current key is up to date.
+"""
+from __future__ import annotations
+
+import glob
+import hashlib
+import json
+import os
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+from . import __version__
+from .errors import InputDataError, problem
+
+__all__ = ["Recording", "PIPELINE_REVISION", "read_participants", "discover", "recording_files",
+           "input_hashes", "input_key", "analysis_of", "definitions_of", "display_path"]
+
+#: Bumped whenever a change of code changes what a recording's outputs are, so that
+#: resuming redoes recordings written by older code (the package version moves slower).
+PIPELINE_REVISION = 4
+
+
+@dataclass(frozen=True)
+class Recording:
+    """One file set of one participant in one paradigm at one site."""
+
+    site: str
+    paradigm: str
+    participant_id: str          # "sub-<label>"
+    group: str
+    path: Path
+    datatype: str = "eeg"        # BIDS datatype folder: "eeg" or "meg" (from the site)
+
+    @property
+    def label(self):
+        return self.participant_id[4:]
+
+    @property
+    def stem(self):
+        return f"{self.participant_id}_task-{self.paradigm}"
+
+    @property
+    def name(self):
+        """How log lines and messages name the recording: participant and paradigm."""
+        return f"{self.participant_id} {self.paradigm}"
+
+
+def display_path(path):
+    """A path as messages show it: relative to the working folder where possible."""
+    try:
+        return os.path.relpath(path)
+    except ValueError:  # pragma: no cover - another drive on Windows
+        return str(path)
+
+
+def read_participants(path):
+    """participant_id -> group, from a tab-separated participants table."""
+    if path is None:
+        return {}
+    import pandas as pd
+
+    table = pd.read_csv(path, sep="\t", dtype=str)
+    if "participant_id" not in table.columns:
+        raise InputDataError(problem(path, "has no participant_id column",
+                                     "add a participant_id column (and a group column)"))
+    groups = table["group"] if "group" in table.columns else ["n/a"] * len(table)
+    return dict(zip(table["participant_id"], groups))
+
+
+def discover(study):
+    """Every recording the study's file patterns find, in a stable order."""
+    groups = read_participants(study.participants)
+    found = []
+    for site in study.sites.values():
+        pattern = re.compile(site.subject_pattern)
+        for analysis in study.analyses:
+            pname = analysis.paradigm.name
+            if pname not in site.files:
+                continue
+            for name in sorted(glob.glob(str(study.root / site.files[pname]))):
+                path = Path(name)
+                match = pattern.search(path.name)
+                if match is None:
+                    raise InputDataError(problem(path, f'the subject pattern "{site.subject_pattern}" finds no id',
+                                                 f"rename the file or set sites.{site.name}.subject_pattern"))
+                pid = f"sub-{match.group(1)}"
+                found.append(Recording(site.name, pname, pid, groups.get(pid, "n/a"), path, site.datatype))
+    return found
+
+
+def recording_files(path):
+    """The main file and its companions (BrainVision header, markers and data; the .fdt data of a .set file)."""
+    path = Path(path)
+    files = [path]
+    if path.suffix.lower() == ".vhdr":
+        text = path.read_text(encoding="latin-1", errors="replace")
+        for key in ("DataFile", "MarkerFile"):
+            m = re.search(rf"^{key}=(.+)$", text, flags=re.M)
+            if m:
+                files.append(path.parent / m.group(1).strip())
+    elif path.suffix.lower() == ".set" and path.with_suffix(".fdt").exists():
+        files.append(path.with_suffix(".fdt"))
+    return files
+
+
+def _sha256(path):
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+def input_hashes(recording):
+    """sha256 of every input file of a recording, keyed by file name."""
+    out = {}
+    for f in recording_files(recording.path):
+        if not f.exists():
+            raise InputDataError(problem(f, "companion file not found",
+                                         f"put it beside {recording.path.name} as its header names it"))
+        out[f.name] = _sha256(f)
+    return out
+
+
+def input_key(hashes, definitions):
+    """One hash of everything that determines a recording's outputs."""
+    text = json.dumps({"inputs": hashes, "definitions": definitions, "heschl": __version__,
+                       "revision": PIPELINE_REVISION}, sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def analysis_of(study, recording):
+    """The study's analysis (paradigm and feature sets) of a recording's paradigm."""
+    return next(a for a in study.analyses if a.paradigm.name == recording.paradigm)
+
+
+def definitions_of(study, recording):
+    """The resolved definitions one recording is processed with (for provenance and the key)."""
+    analysis = analysis_of(study, recording)
+    site = study.sites[recording.site]
+    return {
+        "paradigm": analysis.paradigm.document,
+        "feature_sets": {fs.name: fs.document for fs in analysis.feature_sets},
+        "site": {k: _plain(v) for k, v in vars(site).items()},
+        "common_channels": list(study.common_channels),
+    }
+
+
+def _plain(value):
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    return value

@@ -341,13 +341,27 @@ def _interpolate(analysis, info, interp, keep, dots=None):
                                   verbose=False)
             analysis[epochs_idx] = part.get_data(copy=True)
         if meg_bads:
-            from autoreject.utils import interpolate_bads as field_interpolate
-
             part = mne.EpochsArray(analysis[np.ix_(epochs_idx, meg)].copy(), meg_info.copy(), verbose=False)
             part.info["bads"] = meg_bads
-            field_interpolate(part, picks=np.arange(len(meg)), dots=dots, reset_bads=True, mode="accurate")
+            _field_interpolate(part, dots)
             analysis[np.ix_(epochs_idx, meg)] = part.get_data(copy=True)
     return len(groups)
+
+
+# The two places where heschl leans on autoreject internals: its MEG field interpolation
+# with precomputed dot products (not in autoreject's documented API) and the ``dots``
+# attribute its fit leaves. Kept to these two functions so that an autoreject release
+# that moves them breaks here, in one place; the performance work replaces both.
+def _field_interpolate(epochs, dots):
+    """Repair ``epochs.info["bads"]`` (MEG) in place with autoreject's field mapping."""
+    from autoreject.utils import interpolate_bads
+
+    interpolate_bads(epochs, picks=np.arange(len(epochs.ch_names)), dots=dots, reset_bads=True, mode="accurate")
+
+
+def _fitted_dots(model):
+    """The lead-field dot products a fitted AutoReject computed (None when it kept none)."""
+    return getattr(model, "dots", None)
 
 
 def _fit(detection, info, folds, random_state, n_jobs):
@@ -464,7 +478,7 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
     consensus = {k: float(v) for k, v in model.consensus_.items()}
     keep, reasons, by_consensus = _decisions(labels, reject_log.bad_epochs, clusters, max_cluster, consensus,
                                              types)
-    _interpolate(analysis, info, interp, keep, getattr(model, "dots", None))
+    _interpolate(analysis, info, interp, keep, _fitted_dots(model))
     record = _record(model, names, types, candidates, folds, max_cluster, source, keep, by_consensus, interp,
                      clusters)
     log.info("Adaptive rejection dropped %d of %d epochs (%.0f %%): %d by consensus, %d by "

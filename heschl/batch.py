@@ -25,12 +25,9 @@ def _limit_threads():
     """One BLAS thread per worker: parallelism is over recordings."""
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ[var] = "1"
-    try:
-        from threadpoolctl import threadpool_limits
+    from threadpoolctl import threadpool_limits
 
-        threadpool_limits(1)
-    except ImportError:  # pragma: no cover - threadpoolctl comes with scikit-learn
-        pass
+    threadpool_limits(1)
 
 
 def up_to_date(study, recording, hashes):

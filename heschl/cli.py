@@ -89,7 +89,8 @@ def _parser():
         "into quality-checked, model-ready features. Research software, not a medical device.",
         epilog=EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--version", action="version", version=f"heschl {__version__}")
-    parser.add_argument("-v", "--verbose", action="count", default=0, help="say more (-vv for debugging)")
+    parser.add_argument("-v", "--verbose", action="count", default=0,
+                        help="also print debugging detail (each stage's decisions are printed without it)")
     parser.add_argument("-q", "--quiet", action="store_true", help="only errors")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     demo = sub.add_parser("demo", help="generate the synthetic multi-site study and process it",

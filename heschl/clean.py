@@ -245,6 +245,11 @@ def ocular_method(raw, policy):
     return "regression" if len(mne.pick_types(raw.info, eog=True)) else "none"
 
 
+def _count(n, noun):
+    """"1 bad channel", "3 bad channels"."""
+    return f"{n} {noun}{'' if n == 1 else 's'}"
+
+
 def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_frequency=None):
     """Line noise, pass band, bad channels (detect + interpolate), ocular correction,
     re-reference, on ``raw`` in place.
@@ -301,6 +306,8 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
         raw.info["bads"] = sorted(bads)
         raw.interpolate_bads(reset_bads=True, mode="accurate", origin=(0.0, 0.0, 0.04), verbose="error")
     record["interpolated"] = sorted(bads)
+    log.info("%s interpolated%s", _count(len(bads), "bad channel"),
+             (": " + ", ".join(f"{c} ({r})" for c, r in sorted(bads.items()))) if bads else "")
     method = ocular_method(raw, paradigm.cleaning.ocular)
     ocular = OcularCorrection(method).fit(raw)
     if method != "none":

@@ -116,8 +116,11 @@ def _parser():
 def _logging(verbose, quiet):
     """Handlers for heschl's own loggers only; libraries keep their defaults."""
     level = logging.ERROR if quiet else (logging.INFO if verbose == 0 else logging.DEBUG)
+    from .runlog import RecordingFilter
+
     handler = logging.StreamHandler()
-    handler.setFormatter(logging.Formatter("%(levelname)s %(message)s"))
+    handler.addFilter(RecordingFilter())
+    handler.setFormatter(logging.Formatter("%(levelname)s %(recording)s%(message)s"))
     log.handlers[:] = [handler]
     log.setLevel(level)
     log.propagate = False

@@ -553,6 +553,6 @@ def applicable(analysis, channels, where, types=None):
                                      f"channels ({'; '.join(f'{k}: {v}' for k, v in skipped.items())})",
                                      "add a feature set whose regions name this recording's channels"))
     if skipped:
-        log.info("%s: feature set%s %s not applicable", where, "" if len(skipped) == 1 else "s",
+        log.info("Feature set%s %s not applicable to this recording", "" if len(skipped) == 1 else "s",
                  ", ".join(skipped))
     return dataclasses.replace(analysis, feature_sets=tuple(used)), skipped

@@ -182,6 +182,9 @@ def harmonise(raw, site, paradigm, common_channels, where):
     _check_unique(raw.ch_names, renamed, where)
     raw.rename_channels(renamed)
     record["renamed"] = renamed
+    if renamed:
+        log.info("Renamed %d channel%s (%s)", len(renamed), "" if len(renamed) == 1 else "s",
+                 ", ".join(f"{a} -> {b}" for a, b in list(renamed.items())[:4]) + (", ..." if len(renamed) > 4 else ""))
     record["eog_channels"] = _set_types(raw, site)
     record["restored_reference"] = _restore_reference(raw, site)
     _check_datatype(raw, site, where)
@@ -195,6 +198,7 @@ def harmonise(raw, site, paradigm, common_channels, where):
         if raw.info["sfreq"] < target:
             raise InputDataError(problem(where, f"sampled at {raw.info['sfreq']:g} Hz, below the paradigm's "
                                          f"{target:g} Hz", "lower cleaning.sampling_rate in the paradigm"))
+        log.info("Resampled from %g Hz to %g Hz", raw.info["sfreq"], target)
         raw.resample(target, npad="auto", verbose="error")
     record["sampling_rate"] = float(raw.info["sfreq"])
     picks = data_picks(raw.info)

@@ -32,7 +32,7 @@ class _Clock:
 
 
 def process_recording(study, recording, hashes=None):
-    """Run every stage for one recording.
+    """Run every stage for one recording; every log line on the way names it.
 
     ``hashes`` (from :func:`heschl.inputs.input_hashes`) may be passed when the caller has
     them already, so that the input files are read for hashing only once.
@@ -43,6 +43,14 @@ def process_recording(study, recording, hashes=None):
         ``rows`` (feature rows), ``qc``, ``provenance``, ``curves`` (arrays the QC page
         plots) and ``arrays`` (model-ready datasets), all plain data.
     """
+    from .runlog import recording_context
+
+    with recording_context(recording.name):
+        return _process(study, recording, hashes)
+
+
+def _process(study, recording, hashes):
+    """The stages of :func:`process_recording`, in order."""
     from .arrays import recording_arrays
     from .clean import clean
     from .features import Source, applicable, compute_features
@@ -65,12 +73,12 @@ def process_recording(study, recording, hashes=None):
     cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
                      restored=harmonised["restored_reference"], line_frequency=site.line_frequency)
     clock.lap("clean")
-    trials, times, entries, ch_names, rejection = _segment_and_reject(raw, markers, paradigm, cleaning, where)
+    trials, times, entries, ch_names, rejection = _segment_and_reject(raw, markers, paradigm, cleaning)
     clock.lap("segment and reject")
     source = Source(trials, times, ch_names, raw.info["sfreq"], paradigm,
                     ch_types=[harmonised["channel_types"][c] for c in ch_names])
     rows = [row for fs in analysis.feature_sets for row in compute_features(fs, source, paradigm.rejection.min_trials)]
-    log.info("%s: %d features from %d feature set(s)", where, len(rows), len(analysis.feature_sets))
+    log.info("%d features from %d feature set(s)", len(rows), len(analysis.feature_sets))
     page_curves = curves(analysis, source)
     clock.lap("features")
     arrays = recording_arrays(analysis, source, recording, key, definitions)
@@ -79,8 +87,7 @@ def process_recording(study, recording, hashes=None):
     steps = {"harmonised": harmonised, "cleaning": cleaning, "markers": markers, "rejection": rejection,
              "counts": counts}
     qc = quality_record(recording, analysis, source, steps, rows, skipped_sets)
-    log.info("%s: verdict %s (%d flag%s)", where, qc["verdict"], len(qc["flags"]),
-             "" if len(qc["flags"]) == 1 else "s")
+    log.info("Verdict %s (%d flag%s)", qc["verdict"], len(qc["flags"]), "" if len(qc["flags"]) == 1 else "s")
     provenance = {
         "recording": {"site": recording.site, "participant_id": recording.participant_id,
                       "group": recording.group, "paradigm": recording.paradigm, "file": where,
@@ -97,7 +104,7 @@ def process_recording(study, recording, hashes=None):
     return {"rows": rows, "qc": qc, "provenance": provenance, "curves": page_curves, "arrays": arrays}
 
 
-def _segment_and_reject(raw, markers, paradigm, cleaning, where):
+def _segment_and_reject(raw, markers, paradigm, cleaning):
     """Cut epochs or segments, reject, and count what is left of blinks in the kept trials.
 
     Returns the kept trials per condition, their times, the trial log, the channel names
@@ -132,7 +139,7 @@ def _segment_and_reject(raw, markers, paradigm, cleaning, where):
     record["kept_blinks"] = None if corrected else kept_blinks(raw, entries, window)
     record["trials"] = trial_counts(entries, paradigm)
     kept = sum(n["kept"] for n in record["trials"].values())
-    log.info("%s: %d of %d trials kept (%s)", where, kept, len(entries),
+    log.info("Kept %d of %d trials (%s)", kept, len(entries),
              ", ".join(f"{c} {n['kept']}" for c, n in record["trials"].items()))
     return data, times, entries, ch_names, record
 

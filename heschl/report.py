@@ -74,34 +74,41 @@ def _colours():
     return [PALETTE["first"], PALETTE["second"], PALETTE["contrast"], PALETTE["third"]]
 
 
+def _plot_courses(ax, curves, key):
+    """Draw each named course of ``curves[key]`` over ``curves["times"]`` (s, shown in ms)."""
+    times = [t * 1e3 for t in curves["times"]]
+    for colour, (name, course) in zip(_colours(), curves.get(key, {}).items()):
+        ax.plot(times, course, color=colour, lw=1.6, label=name)
+
+
+def _finish(fig, ax, xlabel, ylabel):
+    """Label the axes, add the legend and return the figure as base64 PNG."""
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
+    ax.legend(frameon=False, fontsize=8)
+    return _png(fig)
+
+
 def figure_waves(curves):
     """Region-mean condition averages and difference waves, measurement windows shaded."""
     fig, ax = _figure()
     for lo, hi in curves.get("windows", []):
         ax.axvspan(lo * 1e3, hi * 1e3, color=PALETTE["window"], alpha=0.5, lw=0)
-    times = [t * 1e3 for t in curves["times"]]
-    for colour, (name, wave) in zip(_colours(), curves.get("waves", {}).items()):
-        ax.plot(times, wave, color=colour, lw=1.6, label=name)
+    _plot_courses(ax, curves, "waves")
     ax.axhline(0, color="#999999", lw=0.6)
     ax.axvline(0, color="#999999", lw=0.6)
-    ax.set_xlabel("time after marker (ms)")
-    ax.set_ylabel(f"{curves.get('region', '')} mean ({curves.get('unit', 'uV')})")
-    ax.legend(frameon=False, fontsize=8)
-    return _png(fig)
+    return _finish(fig, ax, "time after marker (ms)",
+                   f"{curves.get('region', '')} mean ({curves.get('unit', 'uV')})")
 
 
 def figure_itpc(curves):
     """ITPC at the stimulation frequency over time, region mean."""
     fig, ax = _figure()
-    times = [t * 1e3 for t in curves["times"]]
-    for colour, (name, course) in zip(_colours(), curves.get("itpc", {}).items()):
-        ax.plot(times, course, color=colour, lw=1.6, label=name)
+    _plot_courses(ax, curves, "itpc")
     ax.axvline(0, color="#999999", lw=0.6)
     ax.set_ylim(0, 1)
-    ax.set_xlabel("time after train onset (ms)")
-    ax.set_ylabel(f"ITPC at {curves.get('frequency', 0):g} Hz")
-    ax.legend(frameon=False, fontsize=8)
-    return _png(fig)
+    return _finish(fig, ax, "time after train onset (ms)",
+                   f"ITPC at {curves.get('frequency', 0):g} Hz")
 
 
 def figure_spectra(curves):
@@ -109,13 +116,11 @@ def figure_spectra(curves):
     fig, ax = _figure()
     for colour, (name, psd) in zip(_colours(), curves.get("psd", {}).items()):
         ax.semilogy(curves["freqs"], psd, color=colour, lw=1.6, label=name)
-    ax.set_xlabel("frequency (Hz)")
     unit = curves.get("unit", "uV")
-    ax.set_ylabel(f"{curves.get('region', '')} PSD ({f'({unit})' if '/' in unit else unit}^2/Hz)")
+    shown = f"({unit})" if "/" in unit else unit
     ax.set_xlim(0, curves["pass_band"][1] + 5.0)
     ax.set_ylim(bottom=_floor(curves))
-    ax.legend(frameon=False, fontsize=8)
-    return _png(fig)
+    return _finish(fig, ax, "frequency (Hz)", f"{curves.get('region', '')} PSD ({shown}^2/Hz)")
 
 
 def _floor(curves):
@@ -143,6 +148,8 @@ def _main_figure(design, curves):
 def render_recording(recording, result, design):
     """The QC page of one recording, as HTML text."""
     title, image, hint = _main_figure(design, result["curves"])
+    log.debug("Page of %s: verdict %s, %d flag(s)", recording.stem, result["qc"]["verdict"],
+              len(result["qc"]["flags"]))
     return _environment().get_template("recording.html.j2").render(
         css=_css(), caution=CAUTION, version=__version__, recording=recording, qc=result["qc"],
         rows=result["rows"], figure={"title": title, "png": image, "hint": hint},

@@ -195,6 +195,8 @@ def _decide(x, detection, ch_names, paradigm, info, types):
         reasons = ["peak-to-peak: " + "; ".join(r.replace("peak-to-peak ", "", 1) for r in found[i])
                    for i in range(len(x))]
         record = {"method": "fixed", "limits": shown}
+        log.info("Fixed peak-to-peak limits dropped %d of %d trial%s", int((~keep).sum()), len(x),
+                 "" if len(x) == 1 else "s")
         if "eeg" in types:
             record["peak_to_peak_uv"] = paradigm.rejection.peak_to_peak * 1e6
         return keep, reasons, record

@@ -307,7 +307,7 @@ def test_blinks_are_removed_from_kept_epochs(processed_study, truth):
     raw, markers, record = harmonise(read_raw(recording.path), site, paradigm, study.common_channels, "x")
     cleaning = clean(raw, paradigm, where="x", restored=record["restored_reference"],
                      line_frequency=site.line_frequency)
-    data, times, entries, ch_names, _ = _segment_and_reject(raw, markers, paradigm, cleaning, "x")
+    data, times, entries, ch_names, _ = _segment_and_reject(raw, markers, paradigm, cleaning)
     sfreq = raw.info["sfreq"]
     course = blink_course(t["blinks_s"], raw.n_times, sfreq)
     fp1 = ch_names.index("Fp1")
@@ -377,3 +377,36 @@ def test_recordings_without_eog_carry_a_flag_and_those_with_eog_count_kept_blink
                 # Rejection leaves few blinks in oddball trials (at most 10 %: heschl's tolerance,
                 # twice the max_blink_trials QC limit).
                 assert blinks["fraction"] <= 0.1
+
+
+def test_every_log_line_of_a_recording_names_it(processed_study):
+    """Stage decisions are logged, counted, and each line says whose recording it is."""
+    import logging
+
+    from heschl.pipeline import process_recording
+    from heschl.runlog import RecordingFilter
+
+    study, _ = processed_study
+    recording = next(r for r in discover(study) if r.site == "birch" and r.paradigm == "oddball")
+    lines = []
+
+    class Collect(logging.Handler):
+        def emit(self, record):
+            lines.append(self.format(record))
+
+    handler = Collect()
+    handler.addFilter(RecordingFilter())
+    handler.setFormatter(logging.Formatter("%(recording)s%(message)s"))
+    logger = logging.getLogger("heschl")
+    old_level = logger.level
+    logger.addHandler(handler)
+    logger.setLevel(logging.INFO)
+    try:
+        process_recording(study, recording)
+    finally:
+        logger.removeHandler(handler)
+        logger.setLevel(old_level)
+    assert lines and all(line.startswith(f"{recording.participant_id} oddball: ") for line in lines)
+    text = "\n".join(lines)
+    for decision in ("Renamed", "Resampled from 512 Hz to 250 Hz", "interpolated", "Kept ", "Verdict"):
+        assert decision in text, text

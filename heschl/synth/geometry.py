@@ -125,6 +125,28 @@ def _scaled_to(topography, channel, value):
     return topography * (value / referenced[POINTS.index(channel)])
 
 
+def _mirrored_pair(position, direction):
+    """Potential of a left dipole plus its mirror image across the midline (x -> -x).
+
+    Parameters
+    ----------
+    position : tuple of float
+        Left dipole position, head coordinates, m.
+    direction : tuple of float
+        Left dipole moment direction; the right one has the x component negated.
+
+    Returns
+    -------
+    ndarray, shape (n_points,)
+        Sum of both potentials, unscaled.
+    """
+    x, y, z = position
+    dx, dy, dz = direction
+    left = _dipole_potential((x, y, z), (dx, dy, dz))
+    right = _dipole_potential((-x, y, z), (-dx, dy, dz))
+    return left + right
+
+
 @functools.lru_cache(maxsize=1)
 def auditory_topography():
     """Bilateral auditory-cortex generator, fronto-central negative.
@@ -135,9 +157,7 @@ def auditory_topography():
         Scaled so that, after average reference over the common channels, Fz is -1.
         It reverses polarity at the mastoids and inferior temporal sites (TP9, TP10).
     """
-    left = _dipole_potential((-0.045, -0.02, 0.008), (0.6, 1.0, 1.0))
-    right = _dipole_potential((0.045, -0.02, 0.008), (-0.6, 1.0, 1.0))
-    return _scaled_to(left + right, "Fz", -1.0)
+    return _scaled_to(_mirrored_pair((-0.045, -0.02, 0.008), (0.6, 1.0, 1.0)), "Fz", -1.0)
 
 
 @functools.lru_cache(maxsize=1)
@@ -149,9 +169,7 @@ def alpha_topography():
     ndarray, shape (n_points,)
         Scaled so that, after average reference over the common channels, Oz is 1.
     """
-    left = _dipole_potential((-0.02, -0.075, 0.02), (0.2, -1.0, 0.8))
-    right = _dipole_potential((0.02, -0.075, 0.02), (-0.2, -1.0, 0.8))
-    return _scaled_to(left + right, "Oz", 1.0)
+    return _scaled_to(_mirrored_pair((-0.02, -0.075, 0.02), (0.2, -1.0, 0.8)), "Oz", 1.0)
 
 
 @functools.lru_cache(maxsize=1)

@@ -140,6 +140,12 @@ _NOISY_FACTOR = 10.0                  # noisy channel: white noise, times normal
 _PROTECT_FRACTION = 0.5
 
 
+def _read_only(array):
+    """Mark ``array`` read-only (it is cached and shared) and return it."""
+    array.setflags(write=False)
+    return array
+
+
 def channel_kind(name):
     """Return ``"mag"`` for a magnetometer name, ``"grad"`` for a gradiometer name."""
     return "mag" if name.endswith("1") else "grad"
@@ -174,9 +180,7 @@ def helmet_locations():
     normals = np.array(directions)
     normals /= np.linalg.norm(normals, axis=1, keepdims=True)
     positions = ORIGIN + HELMET_RADIUS_M * normals
-    for array in (positions, normals):
-        array.setflags(write=False)
-    return positions, normals
+    return _read_only(positions), _read_only(normals)
 
 
 @functools.lru_cache(maxsize=1)
@@ -204,9 +208,7 @@ def channel_frames():
         e2 = np.cross(normal, e1)
         for ex in (e1, e1, e2):
             rows.append(np.concatenate([centre, ex, np.cross(normal, ex), normal]))
-    frames = np.array(rows)
-    frames.setflags(write=False)
-    return frames
+    return _read_only(np.array(rows))
 
 
 def sarvas_field(points, dipole, moment, origin=ORIGIN):
@@ -317,8 +319,7 @@ def auditory_field():
     for position, direction in AUDITORY_DIPOLES.values():
         moment = _tangential(position, direction) * NAM_PER_UV * 1e-9
         total += sensor_field(position, moment)
-    total.setflags(write=False)
-    return total
+    return _read_only(total)
 
 
 @functools.lru_cache(maxsize=1)
@@ -332,9 +333,7 @@ def blink_field():
     """
     total = sum(sensor_field(eye, _EYE_MOMENT) for eye in _EYES)
     mags = _kinds() == "mag"
-    total = total / np.abs(total[mags]).max()
-    total.setflags(write=False)
-    return total
+    return _read_only(total / np.abs(total[mags]).max())
 
 
 @functools.lru_cache(maxsize=1)
@@ -409,12 +408,13 @@ def measurement_info(sfreq=SFREQ):
     info = mne.create_info(names, sfreq, types, verbose=False)
     coils = {"mag": mne.io.constants.FIFF.FIFFV_COIL_VV_MAG_T3,
              "grad": mne.io.constants.FIFF.FIFFV_COIL_VV_PLANAR_T1}
-    with info._unlock():
-        for channel, loc, kind in zip(info["chs"], channel_frames(), _kinds()):
-            channel["loc"][:] = loc
-            channel["coil_type"] = coils[kind]
-        info["dev_head_t"] = mne.transforms.Transform("meg", "head", np.eye(4))
-        info["line_freq"] = 50.0
+    # Public means only: each channel's dict is filled in place, and dev_head_t and
+    # line_freq are keys mne lets a user set.
+    for channel, loc, kind in zip(info["chs"], channel_frames(), _kinds()):
+        channel["loc"][:] = loc
+        channel["coil_type"] = coils[kind]
+    info["dev_head_t"] = mne.transforms.Transform("meg", "head", np.eye(4))
+    info["line_freq"] = 50.0
     return info
 
 

@@ -155,65 +155,39 @@ class SiteSpec:
         return [f"{stem}_raw.fif"]
 
 
+def _eeg_markers(standard, deviant, train, eyes_open, eyes_closed):
+    """Return an EEG site's stored codes as ``{paradigm: {condition: code}}``.
+
+    Every EEG site records the same paradigms and conditions (:data:`PARADIGMS`); only
+    the code or text it stores for each condition differs.
+    """
+    return {
+        "oddball": {"standard": standard, "deviant": deviant},
+        "clicktrain": {"train": train},
+        "rest": {"eyes-open": eyes_open, "eyes-closed": eyes_closed},
+    }
+
+
 SITE_SPECS = {
     "alder": SiteSpec(
-        name="alder",
-        letter="A",
-        file_format="brainvision",
-        sfreq=500.0,
-        channels=CHANNELS_32,
-        reference="FCz",
-        line_frequency=50.0,
-        trigger_delay_s=0.0,
-        markers={
-            "oddball": {"standard": "standard", "deviant": "deviant"},
-            "clicktrain": {"train": "train"},
-            "rest": {"eyes-open": "eyes-open", "eyes-closed": "eyes-closed"},
-        },
+        name="alder", letter="A", file_format="brainvision", sfreq=500.0,
+        channels=CHANNELS_32, reference="FCz", line_frequency=50.0, trigger_delay_s=0.0,
+        markers=_eeg_markers("standard", "deviant", "train", "eyes-open", "eyes-closed"),
     ),
     "birch": SiteSpec(
-        name="birch",
-        letter="B",
-        file_format="edf",
-        sfreq=512.0,
-        channels=CHANNELS_64,
-        reference="linked-mastoids",
-        line_frequency=60.0,
-        trigger_delay_s=0.018,
-        markers={
-            "oddball": {"standard": "11", "deviant": "12"},
-            "clicktrain": {"train": "21"},
-            "rest": {"eyes-open": "31", "eyes-closed": "32"},
-        },
+        name="birch", letter="B", file_format="edf", sfreq=512.0,
+        channels=CHANNELS_64, reference="linked-mastoids", line_frequency=60.0,
+        trigger_delay_s=0.018, markers=_eeg_markers("11", "12", "21", "31", "32"),
     ),
     "cedar": SiteSpec(
-        name="cedar",
-        letter="C",
-        file_format="fif",
-        sfreq=1000.0,
-        channels=CHANNELS_64,
-        reference="average",
-        line_frequency=50.0,
-        trigger_delay_s=0.0,
-        markers={
-            "oddball": {"standard": 1, "deviant": 2},
-            "clicktrain": {"train": 1},
-            "rest": {"eyes-open": 10, "eyes-closed": 20},
-        },
-        eog=("HEOG", "VEOG"),
+        name="cedar", letter="C", file_format="fif", sfreq=1000.0,
+        channels=CHANNELS_64, reference="average", line_frequency=50.0, trigger_delay_s=0.0,
+        markers=_eeg_markers(1, 2, 1, 10, 20), eog=("HEOG", "VEOG"),
     ),
     "dogwood": SiteSpec(
-        name="dogwood",
-        letter="D",
-        file_format="meg-fif",
-        sfreq=1000.0,
-        channels=(),
-        reference="none",
-        line_frequency=50.0,
-        trigger_delay_s=0.0,
-        markers={"oddball": {"standard": 1, "deviant": 2}},
-        eog=("EOG061",),
-        modality="meg",
-        paradigms=("oddball",),
+        name="dogwood", letter="D", file_format="meg-fif", sfreq=1000.0,
+        channels=(), reference="none", line_frequency=50.0, trigger_delay_s=0.0,
+        markers={"oddball": {"standard": 1, "deviant": 2}}, eog=("EOG061",),
+        modality="meg", paradigms=("oddball",),
     ),
 }

@@ -33,7 +33,7 @@ from .events import make_schedule
 from .sites import (
     ALL_SITES, COMMON_CHANNELS, GROUPS, MEG_SITES, PARADIGMS, SITE_SPECS, SITES, SIZES,
 )
-from .writers import write_brainvision, write_edf, write_fif, write_meg_fif
+from .writers import eeg_fif_info, write_brainvision, write_edf, write_fif
 
 __all__ = ["make_study", "write_recording", "SUBJECTS_PER_GROUP", "MEG_SUBJECTS",
            "FEATURE_SETS", "study_toml_text", "SITES", "MEG_SITES"]
@@ -190,8 +190,8 @@ def _write_files(folder, spec, subject, paradigm, data, names, schedule):
                          rail=art.RAIL_V)
     stim = _stim_channel(onsets, data.shape[1], spec.sfreq)
     types = ["eeg"] * len(spec.channels) + ["eog"] * len(spec.eog)
-    return write_fif(folder / f"{stem}_raw.fif", data, names, types, spec.sfreq,
-                     stim=stim, line_freq=spec.line_frequency, start=start,
+    info = eeg_fif_info(names, types, spec.sfreq, line_freq=spec.line_frequency)
+    return write_fif(folder / f"{stem}_raw.fif", data, info, stim=stim, start=start,
                      subject=f"sub-{subject}")
 
 
@@ -313,9 +313,9 @@ def _write_meg_recording(folder, spec, subject, group, seed, size, artefacts):
     codes = spec.markers[paradigm]
     onsets = [(t + spec.trigger_delay_s, codes[c]) for t, c in schedule.all_onsets()]
     stim = _stim_channel(onsets, recording.data.shape[1], spec.sfreq)
-    files = write_meg_fif(folder / spec.file_names(subject, paradigm)[0], recording.data,
-                          meg.measurement_info(spec.sfreq), stim=stim,
-                          start=_start_time(subject, paradigm), subject=f"sub-{subject}")
+    files = write_fif(folder / spec.file_names(subject, paradigm)[0], recording.data,
+                      meg.measurement_info(spec.sfreq), stim=stim,
+                      start=_start_time(subject, paradigm), subject=f"sub-{subject}")
     names = list(meg.CHANNELS) + list(spec.eog)
     logger.info("Wrote %s %s sub-%s (%d channels, %d s).", spec.name, paradigm, subject,
                 len(names), schedule.duration)

@@ -3,11 +3,12 @@
 - BrainVision (Alder): our own writer; header, marker file and float32 samples in µV.
 - EDF+ (Birch): through edfio; 16-bit samples, physical dimension ``uV``, annotations.
 - FIF (Cedar): through mne; volts, EOG channels and a stimulus channel.
-- FIF (Dogwood, MEG): through mne; magnetometers in T, planar gradiometers in T/m with
-  their coil frames, a vertical EOG channel and a stimulus channel.
+- FIF (Dogwood, MEG): the same writer; magnetometers in T, planar gradiometers in T/m
+  with their coil frames, a vertical EOG channel and a stimulus channel.
 
-Every writer takes the stored signals in volts, shape (n_channels, n_times), and names
-the files it wrote. Output bytes depend only on the inputs (no clock, no host name).
+Every writer takes the stored signals in SI units (V at the EEG sites), shape
+(n_channels, n_times), and names the files it wrote. Output bytes depend only on the
+inputs (no clock, no host name).
 """
 from __future__ import annotations
 
@@ -16,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["write_brainvision", "write_edf", "write_fif", "write_meg_fif"]
+__all__ = ["write_brainvision", "write_edf", "eeg_fif_info", "write_fif"]
 
 _HEADER = """\
 Brain Vision Data Exchange Header File Version 1.0
@@ -151,34 +152,25 @@ def write_edf(path, data, ch_names, sfreq, *, annotations, patient, start, rail)
     return [Path(path).name]
 
 
-def write_fif(path, data, ch_names, ch_types, sfreq, *, stim, line_freq, start, subject):
-    """Write a FIF raw file in volts, with electrode positions and a stimulus channel.
+def eeg_fif_info(ch_names, ch_types, sfreq, *, line_freq):
+    """Return the measurement info of a Cedar FIF file, electrode positions included.
 
     Parameters
     ----------
-    path : path-like
-        File to write; its name must end in ``_raw.fif``.
-    data : ndarray, shape (n_channels, n_times)
-        Stored EEG and EOG signals, V.
     ch_names : list of str
         Channel names (EEG in 10-10 spelling, then EOG).
     ch_types : list of str
         mne channel types (``"eeg"`` or ``"eog"``).
     sfreq : float
         Sampling rate, Hz.
-    stim : ndarray, shape (n_times,)
-        Stimulus channel ``STI 014`` (integer codes, 0 between pulses).
     line_freq : float
         Mains frequency, Hz.
-    start : datetime.datetime
-        Start of the recording (naive, taken as UTC).
-    subject : str
-        Participant id, stored as the subject's hospital id.
 
     Returns
     -------
-    list of str
-        The file name written.
+    mne.Info
+        The channels, then the stimulus channel ``STI 014``; EEG channels carry their
+        positions from :func:`heschl.synth.geometry.standard_montage`.
     """
     import mne
 
@@ -187,32 +179,24 @@ def write_fif(path, data, ch_names, ch_types, sfreq, *, stim, line_freq, start, 
     info = mne.create_info(list(ch_names) + ["STI 014"], sfreq,
                            list(ch_types) + ["stim"], verbose=False)
     info["line_freq"] = float(line_freq)
-    info["subject_info"] = {"his_id": subject}
-    raw = mne.io.RawArray(np.vstack([data, stim[None, :]]), info, verbose=False)
-    raw.set_montage(standard_montage(), on_missing="ignore", verbose=False)
-    return _save_fif(raw, path, start)
+    info.set_montage(standard_montage(), on_missing="ignore", verbose=False)
+    return info
 
 
-def _save_fif(raw, path, start):
-    """Stamp the start time (naive, taken as UTC) and save; returns the file name written."""
-    raw.set_meas_date(start.replace(tzinfo=datetime.timezone.utc))
-    raw.save(Path(path), overwrite=True, verbose=False)
-    return [Path(path).name]
-
-
-def write_meg_fif(path, data, info, *, stim, start, subject):
-    """Write an MEG FIF raw file: SI units, sensor geometry and a stimulus channel.
+def write_fif(path, data, info, *, stim, start, subject):
+    """Write a FIF raw file in SI units with a stimulus channel (Cedar's EEG, Dogwood's MEG).
 
     Parameters
     ----------
     path : path-like
-        File to write; its name must end in ``_meg.fif``.
+        File to write; its name must end in ``_raw.fif`` or ``_meg.fif``.
     data : ndarray, shape (n_channels - 1, n_times)
         Every channel of ``info`` but the last (the stimulus channel), in SI units
-        (T, T/m, V).
+        (V for EEG and EOG; T, T/m for MEG).
     info : mne.Info
-        Channel names, types, coil frames and the sampling rate; the last channel is
-        the stimulus channel. Not modified.
+        Channel names, types, positions or coil frames and the sampling rate, from
+        :func:`eeg_fif_info` or :func:`heschl.synth.meg.measurement_info`; the last
+        channel is the stimulus channel. Not modified.
     stim : ndarray, shape (n_times,)
         Stimulus channel (integer codes, 0 between pulses).
     start : datetime.datetime
@@ -230,4 +214,6 @@ def write_meg_fif(path, data, info, *, stim, start, subject):
     info = info.copy()
     info["subject_info"] = {"his_id": subject}
     raw = mne.io.RawArray(np.vstack([data, stim[None, :]]), info, verbose=False)
-    return _save_fif(raw, path, start)
+    raw.set_meas_date(start.replace(tzinfo=datetime.timezone.utc))
+    raw.save(Path(path), overwrite=True, verbose=False)
+    return [Path(path).name]

@@ -1,0 +1,40 @@
+"""Which recording a log line belongs to.
+
+:func:`recording_context` names the recording being processed in this thread (or task);
+:class:`RecordingFilter`, installed by the CLI on its handler, puts that name in front of
+every heschl log line, so a stage's message ("3 bad channels interpolated") says whose
+it is without every function passing the name along. Standard library only.
+"""
+from __future__ import annotations
+
+import contextlib
+import contextvars
+import logging
+
+__all__ = ["recording_context", "RecordingFilter", "current_recording"]
+
+_CURRENT = contextvars.ContextVar("heschl_recording", default="")
+
+
+def current_recording():
+    """The name of the recording being processed here, or "" outside one."""
+    return _CURRENT.get()
+
+
+@contextlib.contextmanager
+def recording_context(name):
+    """Name the recording whose log lines follow, until the block ends."""
+    token = _CURRENT.set(name)
+    try:
+        yield
+    finally:
+        _CURRENT.reset(token)
+
+
+class RecordingFilter(logging.Filter):
+    """Adds ``record.recording``: "<participant> <paradigm>: " inside a recording, else ""."""
+
+    def filter(self, record):
+        name = _CURRENT.get()
+        record.recording = f"{name}: " if name else ""
+        return True

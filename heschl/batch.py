@@ -212,7 +212,7 @@ def check_study(study):
 
 
 def _check_one(study, recording):
-    from .harmonise import canonical_channel_names, extract_markers
+    from .harmonise import extract_markers, harmonised_names, missing_common
     from .inputs import analysis_of
 
     import mne
@@ -226,13 +226,9 @@ def _check_one(study, recording):
     except Exception as exc:  # the reader's own words, in one line
         row["error"] = f"{row['file']}: cannot be read ({str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__})"
         return row
-    mapping = canonical_channel_names(raw.ch_names, site.channel_aliases)
-    names = [mapping.get(n, n) for n in raw.ch_names]
-    if site.recording_reference not in ("average", "linked-mastoids", "unknown"):
-        names.append(site.recording_reference)
+    names = harmonised_names(raw.ch_names, site)
     row["channels"] = len(raw.ch_names)
-    # The common channels are the study's EEG cap; MEG sites keep their own sensors.
-    row["missing"] = [c for c in study.common_channels if c not in names] if site.datatype == "eeg" else []
+    row["missing"] = missing_common(names, study.common_channels, site)
     row["duration_s"] = round(raw.n_times / raw.info["sfreq"], 2)
     row["sampling_rate_hz"] = raw.info["sfreq"]
     try:

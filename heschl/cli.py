@@ -121,9 +121,17 @@ def _logging(verbose, quiet):
     handler = logging.StreamHandler()
     handler.addFilter(RecordingFilter())
     handler.setFormatter(logging.Formatter("%(levelname)s %(recording)s%(message)s"))
+    before = (list(log.handlers), log.level, log.propagate)
     log.handlers[:] = [handler]
     log.setLevel(level)
     log.propagate = False
+    return before
+
+
+def _restore_logging(before):
+    """Put heschl's logger back as it was (main() may be called again, e.g. by tests)."""
+    log.handlers[:], level, log.propagate = before
+    log.setLevel(level)
 
 
 def main(argv=None):
@@ -136,7 +144,7 @@ def main(argv=None):
     if args.command is None:
         parser.print_help()
         return 2
-    _logging(args.verbose, args.quiet)
+    before = _logging(args.verbose, args.quiet)
     try:
         if args.command == "check":
             _, rows = run_check(args.study)
@@ -152,6 +160,8 @@ def main(argv=None):
     except HeschlError as exc:
         print(f"heschl: {exc}", file=sys.stderr)
         return 1
+    finally:
+        _restore_logging(before)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -243,15 +243,36 @@ def _set_types(raw, site):
     return [raw.ch_names[i] for i in mne.pick_types(raw.info, eog=True, exclude=[])]
 
 
+def reference_channel(site):
+    """The channel a site recorded against, by its standard name, or None when the site's
+    recording reference is a word (average, linked mastoids, unknown), not a channel."""
+    ref = site.recording_reference
+    if ref in ("average", "linked-mastoids", "unknown"):
+        return None
+    return standard_name_map().get(ref.upper(), ref)
+
+
+def harmonised_names(names, site):
+    """Channel names as harmonising leaves them, from the file's names alone: renamed by
+    the site's aliases and the old 10-20 names, with the recording reference restored.
+    ``heschl check`` uses this to predict, without reading data, what ``run`` will find."""
+    mapping = canonical_channel_names(names, site.channel_aliases)
+    out = [mapping.get(n, n) for n in names]
+    ref = reference_channel(site)
+    return out + ([ref] if ref is not None and ref not in out else [])
+
+
+def missing_common(names, common, site):
+    """The study's common channels a recording lacks; an MEG site keeps its own sensors."""
+    return [c for c in common if c not in names] if site.datatype == "eeg" else []
+
+
 def _restore_reference(raw, site):
     """Add the recording reference channel back (all zeros) when it is a named channel."""
     import mne
 
-    ref = site.recording_reference
-    if ref in ("average", "linked-mastoids", "unknown"):
-        return None
-    name = standard_name_map().get(ref.upper(), ref)
-    if name in raw.ch_names:
+    name = reference_channel(site)
+    if name is None or name in raw.ch_names:
         return None
     mne.add_reference_channels(raw, name, copy=False)
     return name

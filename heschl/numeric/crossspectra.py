@@ -12,7 +12,7 @@ import scipy.fft
 import scipy.signal
 
 from heschl.errors import DefinitionError, InputDataError, problem
-from heschl.numeric.spectra import EDGE_TOLERANCE, welch_settings
+from heschl.numeric.spectra import edge_mask, welch_settings
 
 __all__ = ["cross_spectra", "coherence", "imaginary_coherency", "regularise"]
 
@@ -26,8 +26,7 @@ def _taper(where, sfreq, segment, overlap, window, n_times):
 def _frequency_mask(where, freqs, fmin, fmax):
     lo = freqs[0] if fmin is None else float(fmin)
     hi = freqs[-1] if fmax is None else float(fmax)
-    tol = EDGE_TOLERANCE * (freqs[1] - freqs[0])
-    mask = (freqs >= lo - tol) & (freqs <= hi + tol)
+    mask = edge_mask(freqs, freqs[1] - freqs[0], lo, hi)
     if not mask.any():
         raise DefinitionError(problem(
             where, f"fmin = {lo:g} Hz to fmax = {hi:g} Hz holds no bin of the spectrum "

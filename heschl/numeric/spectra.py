@@ -101,6 +101,15 @@ def _uniform_spacing(freqs, where):
     return freqs, df
 
 
+def edge_mask(freqs, df, lo, hi, closed="both"):
+    """Bins between ``lo`` and ``hi`` Hz; ``closed`` says which edges belong (a bin within
+    ``EDGE_TOLERANCE`` bin spacings ``df`` of an edge counts as on it)."""
+    tol = EDGE_TOLERANCE * df
+    above = freqs >= lo - tol if closed in ("left", "both") else freqs > lo + tol
+    below = freqs <= hi + tol if closed in ("right", "both") else freqs < hi - tol
+    return above & below
+
+
 def _band_mask(freqs, df, band, closed, where):
     if closed not in CLOSURES:
         raise DefinitionError(problem(
@@ -111,10 +120,7 @@ def _band_mask(freqs, df, band, closed, where):
     if not lo < hi:
         raise DefinitionError(problem(where, f"band [{lo:g}, {hi:g}] Hz is empty",
                                       "give the lower edge first", key="band"))
-    tol = EDGE_TOLERANCE * df
-    above = freqs >= lo - tol if closed in ("left", "both") else freqs > lo + tol
-    below = freqs <= hi + tol if closed in ("right", "both") else freqs < hi - tol
-    mask = above & below
+    mask = edge_mask(freqs, df, lo, hi, closed)
     if not mask.any():
         raise DefinitionError(problem(
             where, f"band [{lo:g}, {hi:g}] Hz ({closed}-closed) holds no bin of the "

@@ -153,7 +153,7 @@ def _cohort_split_half(rows):
     fewer than 3 recordings."""
     import pandas as pd
 
-    from .numeric.reliability import split_half_cohort
+    from .numeric.cohort import split_half_cohort
 
     if not {"half_odd", "half_even"} <= set(rows.columns):
         return math.nan

@@ -10,17 +10,9 @@ import pytest
 
 from heschl.errors import DefinitionError, InputDataError, ProcessingError
 from heschl.numeric.erp import mean_amplitude, peak
-from heschl.numeric.reliability import (
-    bootstrap_interval,
-    bootstrap_sme,
-    lengthening_factor,
-    sme_difference,
-    sme_mean_amplitude,
-    spearman_brown,
-    split_half,
-    split_half_cohort,
-    split_half_recording,
-)
+from heschl.numeric.cohort import lengthening_factor, spearman_brown, split_half, split_half_cohort
+from heschl.numeric.reliability import (bootstrap_interval, bootstrap_sme, sme_difference, sme_mean_amplitude,
+                                        split_half_recording)
 
 UV = 1e-6  # V
 AWKWARD_SFREQ = 250 + np.pi  # Hz

@@ -5,8 +5,9 @@ Nothing here knows about configuration, the CLI, reports or mne objects; every f
 takes arrays in SI units (V, s, Hz) and documents shapes. Each submodule's ``__all__`` is
 its public surface; this package re-exports all of them.
 """
-from heschl.numeric import blinks, crossspectra, effects, erp, phase, rejection, reliability, rhythms, spectra
+from heschl.numeric import blinks, cohort, crossspectra, effects, erp, phase, rejection, reliability, rhythms, spectra
 from heschl.numeric.blinks import *  # noqa: F401,F403
+from heschl.numeric.cohort import *  # noqa: F401,F403
 from heschl.numeric.crossspectra import *  # noqa: F401,F403
 from heschl.numeric.effects import *  # noqa: F401,F403
 from heschl.numeric.erp import *  # noqa: F401,F403
@@ -16,5 +17,6 @@ from heschl.numeric.reliability import *  # noqa: F401,F403
 from heschl.numeric.rhythms import *  # noqa: F401,F403
 from heschl.numeric.spectra import *  # noqa: F401,F403
 
-__all__ = [name for module in (phase, spectra, erp, rejection, crossspectra, reliability, rhythms, blinks, effects)
+__all__ = [name for module in (phase, spectra, erp, rejection, crossspectra, reliability, cohort, rhythms, blinks,
+                                 effects)
            for name in module.__all__]

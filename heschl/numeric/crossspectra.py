@@ -12,7 +12,7 @@ import scipy.fft
 import scipy.signal
 
 from heschl.errors import DefinitionError, InputDataError, problem
-from heschl.numeric.spectra import edge_mask, welch_settings
+from heschl.numeric.spectra import edge_mask, some_bins, welch_settings
 
 __all__ = ["cross_spectra", "coherence", "imaginary_coherency", "regularise"]
 
@@ -26,13 +26,9 @@ def _taper(where, sfreq, segment, overlap, window, n_times):
 def _frequency_mask(where, freqs, fmin, fmax):
     lo = freqs[0] if fmin is None else float(fmin)
     hi = freqs[-1] if fmax is None else float(fmax)
-    mask = edge_mask(freqs, freqs[1] - freqs[0], lo, hi)
-    if not mask.any():
-        raise DefinitionError(problem(
-            where, f"fmin = {lo:g} Hz to fmax = {hi:g} Hz holds no bin of the spectrum "
-            f"({freqs[0]:g} to {freqs[-1]:g} Hz in steps of {freqs[1] - freqs[0]:g} Hz)",
-            "widen the range (fmin <= fmax) or use longer segments", key="fmin"))
-    return mask
+    df = freqs[1] - freqs[0]
+    return some_bins(edge_mask(freqs, df, lo, hi), freqs, df, where, f"fmin = {lo:g} Hz to fmax = {hi:g} Hz",
+                     "widen the range (fmin <= fmax) or use longer segments", "fmin")
 
 
 def cross_spectra(x, sfreq, segment, overlap=0.5, fmin=None, fmax=None, window="hann"):

@@ -110,6 +110,15 @@ def edge_mask(freqs, df, lo, hi, closed="both"):
     return above & below
 
 
+def some_bins(mask, freqs, df, where, what, fix, key):
+    """``mask`` when it holds a bin; else a one-line error saying ``what`` holds none."""
+    if not mask.any():
+        raise DefinitionError(problem(
+            where, f"{what} holds no bin of the spectrum ({freqs[0]:g} to {freqs[-1]:g} Hz in steps of {df:g} Hz)",
+            fix, key=key))
+    return mask
+
+
 def _band_mask(freqs, df, band, closed, where):
     if closed not in CLOSURES:
         raise DefinitionError(problem(
@@ -120,13 +129,8 @@ def _band_mask(freqs, df, band, closed, where):
     if not lo < hi:
         raise DefinitionError(problem(where, f"band [{lo:g}, {hi:g}] Hz is empty",
                                       "give the lower edge first", key="band"))
-    mask = edge_mask(freqs, df, lo, hi, closed)
-    if not mask.any():
-        raise DefinitionError(problem(
-            where, f"band [{lo:g}, {hi:g}] Hz ({closed}-closed) holds no bin of the "
-            f"spectrum ({freqs[0]:g} to {freqs[-1]:g} Hz in steps of {df:g} Hz)",
-            "widen the band or use longer segments", key="band"))
-    return mask
+    return some_bins(edge_mask(freqs, df, lo, hi, closed), freqs, df, where,
+                     f"band [{lo:g}, {hi:g}] Hz ({closed}-closed)", "widen the band or use longer segments", "band")
 
 
 def band_power(freqs, psd, band, closed="left"):

@@ -11,6 +11,7 @@ import numpy as np
 
 from .errors import InputDataError, problem
 from .sensors import DATA_TYPES, by_type, data_picks, show, types_of
+from .vocabulary import INTERPOLATION_ORIGIN
 
 __all__ = ["BadChannelDetector", "filter_pass_band", "rereference", "clean"]
 
@@ -304,7 +305,7 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
                                          "check the recording; more than a quarter cannot be interpolated"))
     if bads:
         raw.info["bads"] = sorted(bads)
-        raw.interpolate_bads(reset_bads=True, mode="accurate", origin=(0.0, 0.0, 0.04), verbose="error")
+        raw.interpolate_bads(reset_bads=True, mode="accurate", origin=INTERPOLATION_ORIGIN, verbose="error")
     record["interpolated"] = sorted(bads)
     log.info("%s interpolated%s", _count(len(bads), "bad channel"),
              (": " + ", ".join(f"{c} ({r})" for c, r in sorted(bads.items()))) if bads else "")

@@ -15,6 +15,7 @@ import numpy as np
 
 from .errors import InputDataError, problem
 from .sensors import data_picks, types_of
+from .vocabulary import RECORDING_REFERENCE_WORDS
 
 __all__ = ["OLD_NAMES", "Markers", "read_raw", "standard_montage", "standard_name_map",
            "canonical_channel_names", "extract_markers", "harmonise"]
@@ -247,7 +248,7 @@ def reference_channel(site):
     """The channel a site recorded against, by its standard name, or None when the site's
     recording reference is a word (average, linked mastoids, unknown), not a channel."""
     ref = site.recording_reference
-    if ref in ("average", "linked-mastoids", "unknown"):
+    if ref in RECORDING_REFERENCE_WORDS:
         return None
     return standard_name_map().get(ref.upper(), ref)
 

@@ -11,13 +11,14 @@ import numpy as np
 import scipy.signal
 
 from .errors import DefinitionError, InputDataError, did_you_mean, problem
+from .vocabulary import LINE_NOISE_METHODS
 
 __all__ = ["METHODS", "line_noise_ratio", "line_harmonics", "remove_line_noise"]
 
 log = logging.getLogger(__name__)
 
 #: Ways to remove line noise: FIR notches, mne's sinusoid fitting, or nothing.
-METHODS = ("notch", "fit", "none")
+METHODS = LINE_NOISE_METHODS
 
 #: Welch segment lengths tried for `line_noise_ratio`, s: 4 s gives 0.25 Hz bins and is
 #: used when the data hold at least two of them; otherwise 2 s (0.5 Hz bins).

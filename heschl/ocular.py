@@ -18,13 +18,14 @@ import warnings
 import numpy as np
 
 from .errors import DefinitionError, InputDataError, ProcessingError, did_you_mean, problem
+from .vocabulary import OCULAR_METHODS
 
 __all__ = ["METHODS", "NO_SOURCE", "OcularCorrection", "eog_correlation", "max_abs_correlation", "quiet_samples"]
 
 log = logging.getLogger(__name__)
 
 #: Ways to correct ocular artefacts.
-METHODS = ("regression", "ica", "none")
+METHODS = OCULAR_METHODS
 
 #: ``skipped_reason_`` when there is nothing to take the eye signal from.
 NO_SOURCE = "no EOG channel and no frontal channel to stand in"

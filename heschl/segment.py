@@ -7,6 +7,7 @@ import logging
 import numpy as np
 
 from .numeric.rejection import fixed_threshold, peak_to_peak
+from .vocabulary import MIN_ADAPTIVE_EPOCHS
 
 __all__ = ["epoch_plan", "segment_plan", "cut", "reject"]
 
@@ -116,7 +117,7 @@ def cut(raw, plan, window, picks=None):
     return x, times, entries
 
 
-MIN_ADAPTIVE_TRIALS = 10  # cross-validated thresholds need at least this many trials
+MIN_ADAPTIVE_TRIALS = MIN_ADAPTIVE_EPOCHS  # cross-validated thresholds need at least this many trials
 
 
 def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None, info=None, types=None):

@@ -8,23 +8,22 @@ each is shown in.
 """
 from __future__ import annotations
 
+from .vocabulary import AMPLITUDE_UNITS, DISPLAY_UNITS, LOG_POWER_UNITS, POWER_UNITS, SENSOR_TYPES, SI_UNITS
+
 __all__ = ["DATA_TYPES", "DISPLAY", "SI", "data_picks", "types_of", "by_type", "show", "unit_type"]
 
 #: Channel types that carry brain signal, in the order stages report them.
-DATA_TYPES = ("eeg", "mag", "grad")
+DATA_TYPES = SENSOR_TYPES
 
 #: Type -> SI unit of its data inside heschl.
-SI = {"eeg": "V", "mag": "T", "grad": "T/m"}
+SI = SI_UNITS
 
 #: Type -> (unit shown to people, factor from the SI value to it).
-DISPLAY = {"eeg": ("uV", 1e6), "mag": ("fT", 1e15), "grad": ("fT/cm", 1e13)}
+DISPLAY = DISPLAY_UNITS
 
 # Reported unit -> the sensor type whose quantity it measures (amplitudes, powers, log powers).
-_UNIT_TYPES = {
-    "uV": "eeg", "V": "eeg", "uV^2": "eeg", "V^2": "eeg", "log10(uV^2/Hz)": "eeg",
-    "fT": "mag", "T": "mag", "fT^2": "mag", "T^2": "mag", "log10(fT^2/Hz)": "mag",
-    "fT/cm": "grad", "T/m": "grad", "(fT/cm)^2": "grad", "(T/m)^2": "grad", "log10((fT/cm)^2/Hz)": "grad",
-}
+_UNIT_TYPES = {u: t for table in (AMPLITUDE_UNITS, POWER_UNITS, LOG_POWER_UNITS) for t in SENSOR_TYPES
+               for u in table[t]}
 
 
 def data_picks(info):

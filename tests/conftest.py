@@ -1,7 +1,15 @@
-"""Shared fixtures: the synthetic study, generated and processed once per session."""
+"""Shared fixtures: the synthetic study, generated and processed once per session, and a
+seeded random generator."""
 import shutil
 
+import numpy as np
 import pytest
+
+
+@pytest.fixture
+def rng():
+    """A fresh generator with a fixed seed for every test (a module may override it)."""
+    return np.random.default_rng(20240611)
 
 
 @pytest.fixture(scope="session")

@@ -510,6 +510,16 @@ INVALID = {
         "study", None, _edit(STUDY, "line_frequency = 50\n", 'line_frequency = 50\nsubject_pattern = "sub-[0-9]+"\n'),
         "sites.alpha.subject_pattern", ['"sub-[0-9]+" has no (group) for the subject id'],
         "put the id in parentheses"),
+    "study-recording-reference-misspelt": (
+        "study", None, _edit(STUDY, "line_frequency = 50\n", 'line_frequency = 50\nrecording_reference = "averge"\n'),
+        "sites.alpha.recording_reference", ['"averge" is not a recording-reference word', 'did you mean "average"'],
+        "use one of: average, linked-mastoids, unknown, or the name of the channel the site recorded against"),
+    "study-recording-reference-sentence": (
+        "study", None, _edit(STUDY, "line_frequency = 50\n",
+                             'line_frequency = 50\nrecording_reference = "mean of all electrodes"\n'),
+        "sites.alpha.recording_reference",
+        ['"mean of all electrodes" is neither a recording-reference word nor a channel name'],
+        "use one of: average, linked-mastoids, unknown"),
     "study-participants-missing": (
         "study", None, _edit(STUDY, '"participants.tsv"', '"people.tsv"'),
         "participants", ['file "people.tsv" not found'],
@@ -563,6 +573,36 @@ def test_message_starts_with_path_as_given(tmp_path, monkeypatch):
     given = os.path.join("defs", "p.toml")
     with pytest.raises(DefinitionError, match="^" + re.escape(given + ": design: ")):
         config.load_paradigm(given)
+
+
+@pytest.mark.parametrize("given", ["FCz", "TP9", "EEG 065", "linked-mastoids", "unknown"])
+def test_recording_reference_is_a_word_or_a_channel_name(given, workdir):
+    (workdir / "study.toml").write_text(
+        _edit(STUDY, "line_frequency = 50\n", f'line_frequency = 50\nrecording_reference = "{given}"\n'))
+    assert config.load_study(workdir / "study.toml").sites["alpha"].recording_reference == given
+
+
+@pytest.mark.parametrize("given, word", [("averge", "average"), ("Average", "average"), ("AVG", "average"),
+                                         ("linked mastoids", "linked-mastoids"), ("unkown", "unknown")])
+def test_misspelt_recording_reference_is_refused_with_the_word(given, word, workdir):
+    (workdir / "study.toml").write_text(
+        _edit(STUDY, "line_frequency = 50\n", f'line_frequency = 50\nrecording_reference = "{given}"\n'))
+    with pytest.raises(DefinitionError, match=r'^study\.toml: sites\.alpha\.recording_reference: '
+                       + re.escape(f'"{given}" is not a recording-reference word (did you mean "{word}"?); use one '
+                                   "of: average, linked-mastoids, unknown, or the name of the channel the site "
+                                   "recorded against.") + "$"):
+        config.load_study(workdir / "study.toml")
+
+
+def test_vocabulary_is_declared_once():
+    """Config and the stages hold the same objects, not copies that could drift apart."""
+    from heschl import linenoise, ocular, sensors, vocabulary
+
+    assert linenoise.METHODS is vocabulary.LINE_NOISE_METHODS is config.LINE_NOISE_METHODS
+    assert ocular.METHODS is vocabulary.OCULAR_METHODS
+    assert config.OCULAR_POLICIES == ("auto",) + ocular.METHODS
+    assert sensors.DATA_TYPES is vocabulary.SENSOR_TYPES and sensors.DISPLAY is vocabulary.DISPLAY_UNITS
+    assert {sensors.unit_type(u) for u in config.MEASURE_KINDS["band-power"][3]} == set(sensors.DATA_TYPES)
 
 
 def test_error_in_named_feature_set_names_that_file(workdir):

@@ -102,20 +102,18 @@ def _source(types):
     return Source(data, np.arange(10) / 250.0, names, 250.0, PARADIGM, ch_types=types)
 
 
+def _one_measure_file(path, region, **measure):
+    """Write a feature set for the oddball paradigm: one region of channels S0, S1 and one
+    measure on it (values written as JSON, which is valid TOML for texts, numbers and lists)."""
+    lines = [f'name = "{path.stem}"', 'paradigm = "oddball"', "[regions]", f'{region} = ["S0", "S1"]',
+             "[[measures]]"] + [f"{key} = {json.dumps(value)}" for key, value in dict(measure, region=region).items()]
+    path.write_text("\n".join(lines) + "\n")
+    return path
+
+
 def test_a_unit_of_the_wrong_sensor_type_is_a_one_line_error(tmp_path):
-    text = """name = "meg-check"
-paradigm = "oddball"
-[regions]
-front = ["S0", "S1"]
-[[measures]]
-name = "field"
-kind = "mean-amplitude"
-signal = "mismatch"
-region = "front"
-window = [0.0, 0.02]
-"""
-    path = tmp_path / "meg-check.toml"
-    path.write_text(text)
+    path = _one_measure_file(tmp_path / "meg-check.toml", "front", name="field", kind="mean-amplitude",
+                             signal="mismatch", window=[0.0, 0.02])
     fs = load_feature_set(path, PARADIGM)
     with pytest.raises(DefinitionError, match=r'measure field reads region front, whose channels are MAG, but its '
                                               r'unit "uV" is for EEG; set unit = "fT"'):
@@ -226,20 +224,8 @@ def test_rms_combine_is_polarity_free_and_the_mean_cancels():
 
 
 def test_rms_with_negative_polarity_is_refused(tmp_path):
-    path = tmp_path / "rms.toml"
-    path.write_text("""name = "rms"
-paradigm = "oddball"
-[regions]
-pair = ["S0", "S1"]
-[[measures]]
-name = "p"
-kind = "peak-amplitude"
-signal = "mismatch"
-region = "pair"
-window = [0.1, 0.2]
-polarity = "negative"
-combine = "rms"
-""")
+    path = _one_measure_file(tmp_path / "rms.toml", "pair", name="p", kind="peak-amplitude", signal="mismatch",
+                             window=[0.1, 0.2], polarity="negative", combine="rms")
     with pytest.raises(DefinitionError, match=r'measures\[0\].polarity: a root mean square over channels is never '
                                               r'negative; use polarity = "positive" with combine = "rms"'):
         load_feature_set(path, PARADIGM)

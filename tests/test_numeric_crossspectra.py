@@ -3,27 +3,15 @@
 External facts are named beside each assertion with their REFERENCES.md entry
 (docs/REFERENCES.md, "F<n>").
 """
-import warnings
-
 import numpy as np
 import pytest
 import scipy.signal
+from _helpers import AWKWARD_SFREQ, mne_notices_ignored, scipy_welch
+from mne import time_frequency as mne_tf
 
 from heschl.errors import DefinitionError, InputDataError
 from heschl.numeric import welch_psd
-from heschl.numeric.crossspectra import (
-    coherence,
-    cross_spectra,
-    imaginary_coherency,
-    regularise,
-)
-
-AWKWARD_SFREQ = 100 + np.pi  # Hz; no whole number of samples per second or per cycle
-
-
-@pytest.fixture
-def rng():
-    return np.random.default_rng(20240611)
+from heschl.numeric.crossspectra import coherence, cross_spectra, imaginary_coherency, regularise
 
 
 def _mixed_trials(rng, n_trials=6, n_times=1000):
@@ -57,9 +45,7 @@ def test_csd_is_hermitian_positive_semidefinite_with_the_welch_psd_on_its_diagon
     _, psd = welch_psd(x, AWKWARD_SFREQ, segment=2.0, overlap=0.5)
     np.testing.assert_allclose(np.real(_diagonal(csd)), psd.mean(axis=0).T, rtol=1e-10)
     # ... and == scipy.signal.welch with the same nperseg/noverlap/detrend (F37, F9)
-    nperseg = round(2.0 * AWKWARD_SFREQ)  # 206 samples
-    ref_f, ref_p = scipy.signal.welch(x, AWKWARD_SFREQ, window="hann", nperseg=nperseg,
-                                      noverlap=nperseg // 2, detrend="constant")
+    ref_f, ref_p, _ = scipy_welch(x, AWKWARD_SFREQ, segment=2.0, overlap=0.5)
     np.testing.assert_allclose(freqs, ref_f, rtol=1e-12)
     np.testing.assert_allclose(np.real(_diagonal(csd)), ref_p.mean(axis=0).T, rtol=1e-10)
 
@@ -107,17 +93,13 @@ def test_fewer_segments_than_channels_gives_rank_four_until_regularised(rng):
 def test_csd_at_10_hz_matches_mne_csd_array_fourier(rng):
     # docs/REFERENCES.md F39: mne.time_frequency.csd_array_fourier, one whole-epoch FFT per
     # epoch, averaged over epochs -- our Welch with one segment per trial.
-    mne_tf = pytest.importorskip("mne.time_frequency")
     sfreq, n_times = 250.0, 500  # 0.5 Hz bins; 10 Hz lies on a bin
     common = rng.standard_normal((40, 1, n_times))
     gains = np.array([1.0, -0.8, 0.6, 1.2])[:, None]  # a shared source: |S_ij| is large
     x = 10e-6 * (gains * common + 0.5 * rng.standard_normal((40, 4, n_times)))
     freqs, csd = cross_spectra(x, sfreq, segment=n_times / sfreq, fmin=10.0, fmax=10.0)
     assert freqs.tolist() == [10.0]
-    with warnings.catch_warnings():
-        # Deprecation notices of a newer mne concern mne, not this comparison.
-        warnings.simplefilter("ignore", FutureWarning)
-        warnings.simplefilter("ignore", DeprecationWarning)
+    with mne_notices_ignored():
         ref = mne_tf.csd_array_fourier(x, sfreq, fmin=9.9, fmax=10.1, n_fft=n_times,
                                        verbose=False).get_data(frequency=10.0)
     ours = csd[0]

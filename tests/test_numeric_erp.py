@@ -6,19 +6,14 @@ External facts are named beside each assertion with their REFERENCES.md entry
 import numpy as np
 import pytest
 import scipy.stats
+from _helpers import AWKWARD_SFREQ
 
 from heschl.errors import DefinitionError, InputDataError
 from heschl.numeric import mean_amplitude, peak, region_mean
 
-AWKWARD_SFREQ = 100 + np.pi  # Hz
 CHANNELS = ["Fz", "Cz", "Pz"]
 SCALES = np.array([1.0, 0.8, 0.3])  # docs/REFERENCES.md F18: fronto-central maximum
 MMN_PEAK, MMN_SD, MMN_AMPLITUDE = 0.180, 0.030, -2e-6  # s, s, V (docs/REFERENCES.md F18)
-
-
-@pytest.fixture
-def rng():
-    return np.random.default_rng(20240611)
 
 
 def _times(sfreq, tmin=-0.1, tmax=0.5):

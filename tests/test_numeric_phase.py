@@ -9,6 +9,8 @@ import numpy as np
 import pytest
 import scipy.special
 import scipy.stats
+from _helpers import AWKWARD_SFREQ, mne_notices_ignored
+from mne import time_frequency as mne_tf
 
 from heschl.errors import DefinitionError, InputDataError
 from heschl.numeric import (
@@ -25,13 +27,7 @@ from heschl.numeric import (
     welch_psd,
 )
 
-AWKWARD_SFREQ = 100 + np.pi  # Hz; no whole number of samples per second or per cycle
 WORKED_ANGLES = np.array([0.785, 1.570, 3.141, 0.839, 5.934])  # rad, docs/REFERENCES.md F4
-
-
-@pytest.fixture
-def rng():
-    return np.random.default_rng(20240611)
 
 
 def _phase_locked_trials(rng, n_trials=60, sfreq=500.0, duration=1.5, freq=40.0):
@@ -144,17 +140,13 @@ def test_itpc_equals_one_minus_circular_variance(rng):
 
 def test_itpc_matches_mne_tfr_array_morlet(rng):
     # docs/REFERENCES.md F1: mne.time_frequency.tfr_array_morlet(output='itc') as reference.
-    mne_tf = pytest.importorskip("mne.time_frequency")
     sfreq, n_times = 250.0, 500
     t = np.arange(n_times) / sfreq
     phases = rng.vonmises(0.0, 1.5, size=(30, 2, 1))
     data = np.cos(2 * np.pi * 10.0 * t + phases) + 0.8 * rng.standard_normal((30, 2, n_times))
     freqs = np.array([10.0, 40.0])
     own = itpc(morlet_transform(data, sfreq, freqs), axis=0)
-    with warnings.catch_warnings():
-        # Deprecation notices of a newer mne concern mne, not this comparison.
-        warnings.simplefilter("ignore", FutureWarning)
-        warnings.simplefilter("ignore", DeprecationWarning)
+    with mne_notices_ignored():
         ref = mne_tf.tfr_array_morlet(data, sfreq, freqs, n_cycles=7.0, zero_mean=False,
                                       output="itc", verbose=False)
     # atol 1e-6 (dimensionless ITPC): both use a Gaussian of sd n_cycles / (2 pi f) cut

@@ -4,23 +4,18 @@ External facts are named beside each assertion with their REFERENCES.md entry
 (docs/REFERENCES.md, "F<n>").
 """
 import logging
-import warnings
 
+import mne
 import numpy as np
 import pytest
+from _helpers import AWKWARD_SFREQ, mne_notices_ignored
 
 from heschl.errors import DefinitionError, InputDataError
 from heschl.numeric import fixed_threshold, peak_to_peak
 
-AWKWARD_SFREQ = 100 + np.pi  # Hz
 CHANNELS = ["Fp1", "Fz", "Cz", "Pz"]
 BLINK_EPOCHS = [7, 23, 48, 61, 90]
 LIMIT = 100e-6  # V; a common fixed EEG limit (docs/REFERENCES.md F33, common practice)
-
-
-@pytest.fixture
-def rng():
-    return np.random.default_rng(20240611)
 
 
 @pytest.fixture
@@ -62,13 +57,8 @@ def test_baseline_correction_changes_nothing(epochs):
 
 def test_same_epochs_as_mne_reject(epochs):
     # docs/REFERENCES.md F33: mne Epochs(reject=dict(eeg=100e-6)) documentation, same array.
-    mne = pytest.importorskip("mne")
     info = mne.create_info(CHANNELS, AWKWARD_SFREQ, ch_types="eeg")
-    with warnings.catch_warnings():
-        # Deprecation notices of a newer mne concern mne, not this comparison; any other
-        # warning (e.g. about the data) still fails the test.
-        warnings.simplefilter("ignore", FutureWarning)
-        warnings.simplefilter("ignore", DeprecationWarning)
+    with mne_notices_ignored():
         # A copy: mne 1.13 keeps the given array and compacts it in place when it drops
         # epochs (seen here: the input lost its blink rows).
         reference = mne.EpochsArray(epochs.copy(), info, tmin=-0.2, reject=dict(eeg=LIMIT),

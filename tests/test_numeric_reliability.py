@@ -98,7 +98,7 @@ def test_sme_of_standardised_window_means(rng):
 def test_sme_equals_mne_compute_sme():
     # F28 (mne 1.13.2 source): compute_sme = data.mean(axis=2).std(axis=0)/sqrt(n), numpy
     # ddof=0, so ours with ddof=0 must match exactly (same samples, same operations).
-    mne = pytest.importorskip("mne")
+    import mne  # a hard dependency: a missing mne must fail, not skip
     from mne.stats.erp import compute_sme
 
     sfreq, tmin = 250.0, -0.1  # s; mne's grid: tmin + k / sfreq

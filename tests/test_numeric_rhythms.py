@@ -5,17 +5,11 @@ External facts are named beside each assertion with their REFERENCES.md entry
 """
 import numpy as np
 import pytest
+from _helpers import AWKWARD_SFREQ
 
 from heschl.errors import DefinitionError, InputDataError
 from heschl.numeric import welch_psd
 from heschl.numeric.rhythms import aperiodic_fit, peak_frequency
-
-AWKWARD_SFREQ = 100 + np.pi  # Hz; no whole number of samples per second or per cycle
-
-
-@pytest.fixture
-def rng():
-    return np.random.default_rng(20240611)
 
 
 def _time(sfreq, duration):

@@ -9,16 +9,11 @@ import numpy as np
 import pytest
 import scipy.signal
 import scipy.stats
+from _helpers import AWKWARD_SFREQ, mne_notices_ignored, scipy_welch
+from mne import time_frequency as mne_tf
 
 from heschl.errors import DefinitionError, InputDataError
 from heschl.numeric import band_power, relative_band_power, snr_neighbours, welch_psd
-
-AWKWARD_SFREQ = 100 + np.pi  # Hz
-
-
-@pytest.fixture
-def rng():
-    return np.random.default_rng(20240611)
 
 
 def _tone(amplitude, freq, sfreq, duration):
@@ -33,9 +28,8 @@ def test_welch_equals_scipy_welch_at_awkward_sfreq(rng):
     # docs/REFERENCES.md F9: scipy.signal.welch as reference (Welch 1967), identical parameters.
     x = 10e-6 * rng.standard_normal((3, 2, 3000))
     freqs, psd = welch_psd(x, AWKWARD_SFREQ, segment=2.0, overlap=0.5)
-    nperseg = round(2.0 * AWKWARD_SFREQ)  # 206 samples
-    ref_f, ref_p = scipy.signal.welch(x, AWKWARD_SFREQ, window="hann", nperseg=nperseg,
-                                      noverlap=nperseg // 2, detrend="constant")
+    ref_f, ref_p, nperseg = scipy_welch(x, AWKWARD_SFREQ, segment=2.0, overlap=0.5)
+    assert nperseg == 206  # samples
     np.testing.assert_allclose(freqs, ref_f, rtol=1e-12)
     np.testing.assert_allclose(psd, ref_p, rtol=1e-12)
     assert psd.shape == (3, 2, nperseg // 2 + 1)
@@ -43,14 +37,10 @@ def test_welch_equals_scipy_welch_at_awkward_sfreq(rng):
 
 def test_welch_and_band_power_match_mne_psd_array_welch(rng):
     # docs/REFERENCES.md F13: mne.time_frequency.psd_array_welch equals scipy's Welch to ~1e-15.
-    mne_tf = pytest.importorskip("mne.time_frequency")
     sfreq, n = 250.0, 500
     x = 10e-6 * rng.standard_normal((4, 15000))
     freqs, psd = welch_psd(x, sfreq, segment=n / sfreq)
-    with warnings.catch_warnings():
-        # Deprecation notices of a newer mne concern mne, not this comparison.
-        warnings.simplefilter("ignore", FutureWarning)
-        warnings.simplefilter("ignore", DeprecationWarning)
+    with mne_notices_ignored():
         ref_p, ref_f = mne_tf.psd_array_welch(x, sfreq, n_fft=n, n_per_seg=n,
                                               n_overlap=n // 2, window="hann",
                                               average="mean", verbose=False)

@@ -63,9 +63,25 @@ def test_mastoid_polarity_inverts_under_average_reference():
     # docs/REFERENCES.md F19 (Naatanen et al. 2007): with a generator in auditory cortex the
     # mismatch response is negative fronto-centrally and positive at the mastoids under an
     # average (or nose) reference; a linked-mastoid reference absorbs it (mastoids read 0).
-    pattern = np.array([-1.0, -1.0, -0.8, -0.2, 0.6, 0.6])[:, None] * np.ones((1, 10)) * 1e-6
-    avg, linked = _raw(pattern), _raw(pattern)
+    # The potentials against an inactive (nose-like) point, V; the same scalp field read
+    # against the linked mastoids, as many labs record it, shows no mastoid inversion at all.
+    scalp = np.array([-1.0, -1.0, -0.8, -0.2, 0.6, 0.6])[:, None] * np.ones((1, 10)) * 1e-6
+    as_recorded = scalp - scalp[[4, 5]].mean(axis=0)
+    assert (as_recorded[[4, 5]] == 0).all()
+
+    avg = _raw(as_recorded)
     rereference(avg, "average")
+    # Independent computation (common practice, the definition of the average reference):
+    # subtract the mean over the EEG channels at every sample, by hand with numpy. It
+    # equals the scalp field minus its mean whatever the recording reference was.
+    by_hand = as_recorded - as_recorded.mean(axis=0)
+    np.testing.assert_allclose(by_hand, scalp - scalp.mean(axis=0), atol=1e-18)
+    np.testing.assert_allclose(avg.get_data(), by_hand, atol=1e-18)
+    # The inversion appears only through re-referencing: mastoids were 0, now positive.
+    assert (avg.get_data()[[4, 5]] > 0.5e-6).all() and (avg.get_data()[[0, 1]] < 0).all()
+
+    linked = _raw(scalp)
     rereference(linked, "linked-mastoids")
-    assert (avg.get_data()[[4, 5]] > 0).all() and (avg.get_data()[[0, 1]] < 0).all()
+    assert (scalp[[4, 5]] > 0).all()  # before: the mastoids carry the response
+    np.testing.assert_allclose(linked.get_data(), as_recorded, atol=1e-18)
     np.testing.assert_allclose(linked.get_data()[[4, 5]], 0.0, atol=1e-18)

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
-FLAG_LEVELS = ("note", "caution", "unusable")  # TODO-VOCAB
+from ..vocabulary import FLAG_LEVELS
 
 __all__ = ["FLAG_LEVELS", "flag", "verdict", "trial_flags", "channel_flags", "snr_flags", "cleaning_flags",
            "input_flags", "inversion_flags", "ocular_flags"]

@@ -24,9 +24,10 @@ import numpy as np
 
 from .errors import InputDataError, problem
 from .sensors import DISPLAY
+from .vocabulary import INTERPOLATION_ORIGIN, MEG_SENSOR_TYPES, MIN_ADAPTIVE_EPOCHS, SENSOR_TYPES
 
 __all__ = ["interpolation_candidates", "channel_adjacency", "interpolated_clusters",
-           "adaptive_reject", "CONSENSUS_CANDIDATES", "MIN_EPOCHS"]
+           "adaptive_reject", "CONSENSUS_CANDIDATES"]
 
 log = logging.getLogger(__name__)
 
@@ -34,16 +35,9 @@ log = logging.getLogger(__name__)
 #: consensus); 10-50 % spans lenient to strict for 16-128 channels.
 CONSENSUS_CANDIDATES = (0.1, 0.2, 0.3, 0.4, 0.5)
 
-#: Fewest epochs for which cross-validated thresholds are attempted.
-MIN_EPOCHS = 10
-
 #: Fewest validation epochs per cross-validation fold (the fold's score compares a
 #: training mean with the validation median; a median of fewer than 3 is one epoch).
 MIN_VALIDATION_EPOCHS = 3
-
-#: Sphere centre for the spline interpolation, m, head frame of the template montage;
-#: the same centre `heschl.clean` uses for bad channels.
-INTERPOLATION_ORIGIN = (0.0, 0.0, 0.04)
 
 #: Distance rule for the adjacency fallback: channels closer than this many times the
 #: median nearest-neighbour distance are neighbours. On a regular grid 1.5 reaches the
@@ -239,12 +233,9 @@ def _check_arrays(epochs_data, detection_data, info):
     return analysis, detection
 
 
-_TYPES = ("eeg", "mag", "grad")
-
-
 def _data_info(info):
     types = set(info.get_channel_types())
-    if not types or not types <= set(_TYPES):
+    if not types or not types <= set(SENSOR_TYPES):
         raise InputDataError(problem(
             "adaptive_reject", f"info holds channel types {sorted(types)}, not only eeg, mag and grad",
             "pass the info of the cut data channels, e.g. "
@@ -260,10 +251,10 @@ def _folds(n_epochs, cv):
         raise InputDataError(problem("adaptive_reject", f"cv = {cv!r}",
                                      "pass the number of cross-validation folds, an integer >= 2",
                                      key="cv"))
-    if n_epochs < MIN_EPOCHS:
+    if n_epochs < MIN_ADAPTIVE_EPOCHS:
         raise InputDataError(problem(
             "adaptive_reject", f"{n_epochs} epochs are too few to learn rejection thresholds "
-            f"by cross-validation (at least {MIN_EPOCHS})",
+            f"by cross-validation (at least {MIN_ADAPTIVE_EPOCHS})",
             'use rejection.method = "fixed" for recordings this short', key="epochs_data"))
     folds = min(int(cv), n_epochs // MIN_VALIDATION_EPOCHS)
     if folds < cv:
@@ -326,7 +317,7 @@ def _interpolate(analysis, info, interp, keep, dots=None):
     import mne
 
     types = np.array(info.get_channel_types())
-    meg = np.flatnonzero(np.isin(types, ("mag", "grad")))
+    meg = np.flatnonzero(np.isin(types, MEG_SENSOR_TYPES))
     meg_info = mne.pick_info(info, meg) if len(meg) else None
     groups = {}
     for e in np.flatnonzero(keep & interp.any(axis=1)):
@@ -442,7 +433,7 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
         Parallel jobs for autoreject, with scikit-learn's meaning.
     cv : int, default=5
         Cross-validation folds; fewer when there are less than 3 validation epochs per
-        fold (at least `MIN_EPOCHS` epochs are required).
+        fold (at least `MIN_ADAPTIVE_EPOCHS` epochs are required).
 
     Returns
     -------

@@ -37,7 +37,7 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
-from .config import DESIGNS
+from .vocabulary import DESIGNS
 from .errors import DefinitionError, InputDataError, did_you_mean, problem
 from .features import N_CYCLES, spectrum_of
 from .numeric.crossspectra import cross_spectra

@@ -59,7 +59,7 @@ def process_and_write(study, recording, force=False):
     from .inputs import analysis_of, input_hashes
     from .outputs import write_recording
     from .pipeline import process_recording
-    from .report import render_recording
+    from .pages import render_recording
 
     summary = {"site": recording.site, "participant_id": recording.participant_id,
                "paradigm": recording.paradigm, "group": recording.group, "status": "done", "error": None}

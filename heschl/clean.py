@@ -273,8 +273,6 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
     -------
     record : dict
     """
-    import mne
-
     from .linenoise import remove_line_noise
     from .ocular import OcularCorrection
 

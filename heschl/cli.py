@@ -78,8 +78,8 @@ def _print_run(study, summaries):
     for s in failed:
         print(f"  failed: {s['error']}")
     print(f"Outputs: {os.path.relpath(study.output)}")
-    print(f"Study page: {os.path.relpath(study.output / 'group' / 'report.html')}")
-    print(f"Recording pages: {os.path.relpath(study.output)}/sub-*/<eeg or meg>/*_report.html")
+    print(f"Study page: {os.path.relpath(study.output / 'group' / 'review.html')}")
+    print(f"Recording pages: {os.path.relpath(study.output)}/sub-*/<eeg or meg>/*_review.html")
     return 1 if failed or not summaries else 0
 
 

@@ -15,6 +15,7 @@ from .numeric.phase import (evoked_power, induced_power, itpc, morlet_transform,
                             rayleigh)
 from .numeric.rhythms import aperiodic_fit, peak_frequency
 from .numeric.spectra import band_power, snr_neighbours, welch_psd
+from .vocabulary import COMBINES, DEFAULT_BAND_CLOSURE, MEG_SENSOR_TYPES
 
 __all__ = ["MEASURES", "UNIT_SCALE", "RELIABILITY_COLUMNS", "Source", "applicable", "compute_features",
            "reliability_columns", "spectrum_of"]
@@ -149,7 +150,7 @@ def _region_wave(m, source, regions):
     gradiometers, whose sign depends on their orientation to the source)."""
     p = m.params
     wave = source.average(p["signal"])
-    if p.get("combine", "mean") == "rms":
+    if p.get("combine", COMBINES[0]) == "rms":
         picks = [source.ch_names.index(c) for c in regions[p["region"]]]
         return np.sqrt(np.mean(wave[picks] ** 2, axis=0))
     return _region(source, regions, p["region"], wave)
@@ -194,7 +195,7 @@ def _evoked_power(m, source, regions, bands):
 
 def _band(m, source, regions, bands, signal, band):
     freqs, psd = source.spectrum(signal, m.params["spectrum"])
-    closed = m.params.get("closures", {}).get(band, "left")
+    closed = m.params.get("closures", {}).get(band, DEFAULT_BAND_CLOSURE)
     return band_power(freqs, _region(source, regions, m.params["region"], psd), bands[band], closed=closed)
 
 
@@ -369,9 +370,10 @@ def reliability_columns(measures, source, feature_set, values, seed=0):
     boot_seed, split_seed = np.random.SeedSequence(seed).spawn(2)
     low, high, boot_sd = bootstrap_interval(None, score, n_boot=settings["bootstrap"], level=settings["level"],
                                             seed=np.random.default_rng(boot_seed), groups=indices)
-    odd_even = split_half_recording(None, score, method="odd-even", groups=indices)["halves"][0]
+    full = np.asarray(values, dtype=float)  # the score of all trials: not computed again
+    odd_even = split_half_recording(None, score, method="odd-even", groups=indices, full_score=full)["halves"][0]
     splits = split_half_recording(None, score, method="random", n_splits=settings["splits"],
-                                  seed=np.random.default_rng(split_seed), groups=indices)
+                                  seed=np.random.default_rng(split_seed), groups=indices, full_score=full)
     out = []
     for k, m in enumerate(measures):
         sme = _analytic_sme(m, source, feature_set)
@@ -389,7 +391,7 @@ def _analytic_sme(m, source, feature_set):
     mean amplitude over a region mean; None for any other measure."""
     from .numeric.reliability import sme_difference, sme_mean_amplitude
 
-    if m.kind != "mean-amplitude" or m.params.get("combine", "mean") != "mean":
+    if m.kind != "mean-amplitude" or m.params.get("combine", COMBINES[0]) != "mean":
         return None
     smes = []
     for c in source.conditions_of(m.params["signal"]):
@@ -536,7 +538,7 @@ def applicable(analysis, channels, where, types=None):
     for fs in analysis.feature_sets:
         wanted = {c for names in fs.regions.values() for c in names}
         modality = "eeg" if wanted <= electrodes else "meg"
-        has = "eeg" in types if modality == "eeg" else bool(types & {"mag", "grad"})
+        has = "eeg" in types if modality == "eeg" else bool(types & set(MEG_SENSOR_TYPES))
         missing = sorted(wanted - present)
         if not missing:
             used.append(fs)

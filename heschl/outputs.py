@@ -11,6 +11,8 @@ import os
 from pathlib import Path
 
 from . import __version__
+from .config.feature_set import MEASURE_KINDS
+from .vocabulary import AMPLITUDE_UNITS, POWER_UNITS
 
 __all__ = ["write_atomic", "recording_paths", "write_recording", "write_dataset_description",
            "write_group", "write_group_outputs", "FEATURE_COLUMNS", "FEATURE_SIDECAR"]
@@ -21,11 +23,13 @@ FEATURE_COLUMNS = ["feature", "value", "unit", "kind", "signal", "region", "wind
 FEATURE_SIDECAR = {
     "feature": {"Description": "Name of the measure, from the feature set."},
     "value": {"Description": "The measured value, in the unit of the row. NaN when it could not be computed."},
-    "unit": {"Description": "Unit of value: uV (microvolt), ms, uV^2 (integrated power), 1 (dimensionless)."},
-    "kind": {"Description": "Measure kind: mean-amplitude, peak-amplitude, peak-latency, itpc, "
-                            "evoked-power, band-power, relative-band-power, band-ratio."},
+    "unit": {"Description": "Unit of value: an amplitude ("
+                            + ", ".join(u for units in AMPLITUDE_UNITS.values() for u in units)
+                            + "), a power (" + ", ".join(u for units in POWER_UNITS.values() for u in units)
+                            + "), ms or s, Hz, or 1 (dimensionless)."},
+    "kind": {"Description": "Measure kind: " + ", ".join(MEASURE_KINDS) + "."},
     "signal": {"Description": "Condition or contrast (difference wave) the measure reads; numerator/denominator for ratios."},
-    "region": {"Description": "Named channel region of the feature set; values are averaged over its channels."},
+    "region": {"Description": "Named channel region of the feature set; values are averaged over its channels (root mean square with combine = rms)."},
     "window": {"Description": "Time window (s after the marker) and frequency, or band name."},
     "n_trials": {"Description": "Kept trials (epochs or segments) the value rests on; the smaller count for contrasts."},
     "ci_low": {"Description": "Lower end of the bootstrap percentile interval (level set in the feature set, default 95 %), "
@@ -103,7 +107,7 @@ def recording_paths(output, recording):
         "features_json": folder / f"{stem}_features.json",
         "qc": folder / f"{stem}_qc.json",
         "provenance": folder / f"{stem}_provenance.json",
-        "report": folder / f"{stem}_report.html",
+        "page": folder / f"{stem}_review.html",
     }
 
 
@@ -115,7 +119,7 @@ def features_tsv(rows):
     return table.to_csv(sep="\t", index=False, na_rep="n/a", float_format="%.6g", lineterminator="\n")
 
 
-def write_recording(output, recording, result, report_html):
+def write_recording(output, recording, result, page_html):
     """Write features (+ sidecar), QC, provenance and the page; provenance goes last.
 
     Provenance is the marker of a complete recording: resuming trusts a recording only
@@ -132,7 +136,7 @@ def write_recording(output, recording, result, report_html):
     write_atomic(paths["features"], features_tsv(result["rows"]))
     write_atomic(paths["features_json"], _json(FEATURE_SIDECAR))
     write_atomic(paths["qc"], _json(_finite(result["qc"])))
-    write_atomic(paths["report"], report_html)
+    write_atomic(paths["page"], page_html)
     write_atomic(paths["provenance"], _json(_finite(result["provenance"])))
     return paths
 
@@ -145,7 +149,7 @@ def write_dataset_description(output, study_name):
     return write_atomic(Path(output) / "dataset_description.json", _json(desc))
 
 
-def write_group(output, table, qc_table, report_html=None, summary=None):
+def write_group(output, table, qc_table, page_html=None, summary=None):
     """Study-level tables (and page) under ``<output>/group``: features, QC, and the group
     summary (means with intervals and Hedges' g per site and pooled) when there is one."""
     folder = Path(output) / "group"
@@ -155,8 +159,8 @@ def write_group(output, table, qc_table, report_html=None, summary=None):
     write_atomic(folder / "features.tsv", table.to_csv(sep="\t", index=False, na_rep="n/a",
                                                        float_format="%.6g", lineterminator="\n"))
     write_atomic(folder / "qc.tsv", qc_table.to_csv(sep="\t", index=False, na_rep="n/a", lineterminator="\n"))
-    if report_html is not None:
-        write_atomic(folder / "report.html", report_html)
+    if page_html is not None:
+        write_atomic(folder / "review.html", page_html)
     return folder
 
 
@@ -165,7 +169,7 @@ def write_group_outputs(study, recordings, summaries):
     import pandas as pd
 
     from .group import group_summary
-    from .report import render_study
+    from .pages import render_study
 
     tables, qc_rows = [], []
     for recording, summary in zip(recordings, summaries):
@@ -182,7 +186,7 @@ def write_group_outputs(study, recordings, summaries):
         qc_rows.append({"participant_id": recording.participant_id, "site": recording.site,
                         "group": recording.group, "paradigm": recording.paradigm, "verdict": qc["verdict"],
                         "flags": " | ".join(f["message"] for f in qc["flags"]),
-                        "report": os.path.relpath(paths["report"], Path(study.output) / "group")})
+                        "page": os.path.relpath(paths["page"], Path(study.output) / "group")})
     table = pd.concat(tables, ignore_index=True) if tables else pd.DataFrame()
     qc_table = pd.DataFrame(qc_rows)
     failures = [s for s in summaries if s["status"] == "failed"]

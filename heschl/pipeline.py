@@ -73,7 +73,7 @@ def _process(study, recording, hashes):
     cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
                      restored=harmonised["restored_reference"], line_frequency=site.line_frequency)
     clock.lap("clean")
-    trials, times, entries, ch_names, rejection = _segment_and_reject(raw, markers, paradigm, cleaning)
+    trials, times, entries, ch_names, rejection, counts = _segment_and_reject(raw, markers, paradigm, cleaning)
     clock.lap("segment and reject")
     source = Source(trials, times, ch_names, raw.info["sfreq"], paradigm,
                     ch_types=[harmonised["channel_types"][c] for c in ch_names])
@@ -83,7 +83,6 @@ def _process(study, recording, hashes):
     clock.lap("features")
     arrays = recording_arrays(analysis, source, recording, key, definitions)
     clock.lap("arrays")
-    counts = rejection.pop("trials")
     steps = {"harmonised": harmonised, "cleaning": cleaning, "markers": markers, "rejection": rejection,
              "counts": counts}
     qc = quality_record(recording, analysis, source, steps, rows, skipped_sets)
@@ -107,8 +106,8 @@ def _process(study, recording, hashes):
 def _segment_and_reject(raw, markers, paradigm, cleaning):
     """Cut epochs or segments, reject, and count what is left of blinks in the kept trials.
 
-    Returns the kept trials per condition, their times, the trial log, the channel names
-    and the rejection record (with ``trials``: the counts per condition).
+    Returns the kept trials per condition, their times, the trial log, the channel names,
+    the rejection record and the trial counts per condition.
     """
     import mne
 
@@ -137,11 +136,11 @@ def _segment_and_reject(raw, markers, paradigm, cleaning):
     ocular = cleaning.get("ocular") or {}
     corrected = ocular.get("method") not in (None, "none") and not ocular.get("skipped_reason")
     record["kept_blinks"] = None if corrected else kept_blinks(raw, entries, window)
-    record["trials"] = trial_counts(entries, paradigm)
-    kept = sum(n["kept"] for n in record["trials"].values())
+    counts = trial_counts(entries, paradigm)
+    kept = sum(n["kept"] for n in counts.values())
     log.info("Kept %d of %d trials (%s)", kept, len(entries),
-             ", ".join(f"{c} {n['kept']}" for c, n in record["trials"].items()))
-    return data, times, entries, ch_names, record
+             ", ".join(f"{c} {n['kept']}" for c, n in counts.items()))
+    return data, times, entries, ch_names, record, counts
 
 
 def package_versions():

@@ -117,9 +117,6 @@ def cut(raw, plan, window, picks=None):
     return x, times, entries
 
 
-MIN_ADAPTIVE_TRIALS = MIN_ADAPTIVE_EPOCHS  # cross-validated thresholds need at least this many trials
-
-
 def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None, info=None, types=None):
     """Baseline-correct, apply the rejection policy, and split kept trials by condition.
 
@@ -202,9 +199,9 @@ def _decide(x, detection, ch_names, paradigm, info, types):
             record["peak_to_peak_uv"] = paradigm.rejection.peak_to_peak * 1e6
         return keep, reasons, record
     if method == "adaptive":
-        if len(x) < MIN_ADAPTIVE_TRIALS:
+        if len(x) < MIN_ADAPTIVE_EPOCHS:
             return keep, reasons, {"method": "adaptive", "skipped": f"only {len(x)} trials; "
-                                   f"adaptive thresholds need at least {MIN_ADAPTIVE_TRIALS}"}
+                                   f"adaptive thresholds need at least {MIN_ADAPTIVE_EPOCHS}"}
         from .adaptive import adaptive_reject
 
         cleaned, keep, found, record = adaptive_reject(x, detection, info,

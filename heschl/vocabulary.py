@@ -11,7 +11,7 @@ Order matters: a list is shown in this order in error messages ("use one of: ...
 from __future__ import annotations
 
 __all__ = [
-    "DESIGNS", "DATATYPES", "SENSOR_TYPES", "SI_UNITS", "DISPLAY_UNITS", "AMPLITUDE_UNITS", "POWER_UNITS",
+    "DESIGNS", "DATATYPES", "SENSOR_TYPES", "MEG_SENSOR_TYPES", "SI_UNITS", "DISPLAY_UNITS", "AMPLITUDE_UNITS", "POWER_UNITS",
     "LOG_POWER_UNITS", "LINE_NOISE_METHODS", "OCULAR_METHODS", "OCULAR_POLICIES", "BAD_CHANNEL_POLICIES",
     "REFERENCE_WORDS", "RECORDING_REFERENCE_WORDS", "REJECTION_METHODS", "BAND_CLOSURES",
     "DEFAULT_BAND_CLOSURE", "COMBINES", "POLARITIES", "MIN_ADAPTIVE_EPOCHS", "INTERPOLATION_ORIGIN",
@@ -69,6 +69,9 @@ DATATYPES = ("eeg", "meg")
 
 #: Channel types that carry brain signal, in the order stages report them.
 SENSOR_TYPES = ("eeg", "mag", "grad")
+
+#: The sensor types of a MEG system: magnetometers and planar gradiometers.
+MEG_SENSOR_TYPES = ("mag", "grad")
 
 #: Sensor type -> SI unit of its data inside heschl (mne's units).
 SI_UNITS = {"eeg": "V", "mag": "T", "grad": "T/m"}

@@ -621,9 +621,8 @@ def test_missing_file_is_refused(workdir):
 
 # --------------------------------------------------------------------------- contracts
 def test_measure_kinds_match_feature_functions():
-    # Skips (does not fail) while a dependency of heschl.features is still being written.
-    features = pytest.importorskip("heschl.features", reason="heschl.features is not importable yet",
-                                   exc_type=ImportError)
+    from heschl import features
+
     assert set(config.MEASURE_KINDS) == set(features.MEASURES)
 
 

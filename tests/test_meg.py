@@ -1,7 +1,6 @@
 """MEG: per-sensor-type processing, end to end on the synthetic Dogwood recording, and units."""
 import json
 
-import mne
 import numpy as np
 import pytest
 

@@ -403,6 +403,12 @@ def test_recording_split_half_shapes_and_batching(rng):
     assert odd_even["n_splits"] == 1
     np.testing.assert_array_equal(odd_even["halves"][0],
                                   [trials[0:40:2].mean(axis=0), trials[1:40:2].mean(axis=0)])
+    # A known full-trial score gives the same result without scoring all trials again.
+    known = split_half_recording(trials, mean_score, n_splits=30, seed=5, full_score=trials.mean(axis=0))
+    for key in ("halves", "score", "se", "reliability"):
+        np.testing.assert_allclose(known[key], single[key], rtol=1e-12)
+    with pytest.raises(DefinitionError, match=r"full_score has shape \(2,\), the half scores \(3,\)"):
+        split_half_recording(trials, mean_score, full_score=np.zeros(2))
 
 
 def test_recording_split_half_errors(rng):

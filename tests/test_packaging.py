@@ -29,7 +29,7 @@ def test_installed_wheel_finds_its_definitions_outside_the_checkout(wheel, tmp_p
     target = tmp_path / "site"
     subprocess.run([sys.executable, "-m", "pip", "install", "--no-deps", "--quiet", "--target",
                     str(target), str(wheel)], check=True, capture_output=True)
-    code = ("import heschl.config as c, heschl.report as r; "
+    code = ("import heschl.config as c, heschl.pages as r; "
             "p = c.load_paradigm(c.builtin_dir('paradigms') / 'oddball.toml'); "
             "print(c.builtin_dir('templates')); print(p.name)")
     env = {"PYTHONPATH": str(target), "PATH": ""}

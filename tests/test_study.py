@@ -8,7 +8,7 @@ import pytest
 from heschl.batch import run_study
 from heschl.outputs import FEATURE_COLUMNS, recording_paths
 from heschl.inputs import discover
-from heschl.report import CAUTION
+from heschl.pages import CAUTION
 from heschl.synth.artefacts import blink_course
 
 
@@ -127,7 +127,7 @@ def test_provenance_records_inputs_definitions_versions_and_filter(processed_stu
 
 def test_pages_are_self_contained_and_carry_the_caution(processed_study):
     study, _ = processed_study
-    pages = sorted(study.output.rglob("*_report.html")) + [study.output / "group" / "report.html"]
+    pages = sorted(study.output.rglob("*_review.html")) + [study.output / "group" / "review.html"]
     assert len(pages) == 20
     for page in pages:
         html = page.read_text()
@@ -157,7 +157,7 @@ def test_one_bad_file_does_not_stop_the_study(study_copy):
     assert len(failed) == 1 and failed[0]["error"].count("\n") == 0
     assert broken.name in failed[0]["error"]
     assert sum(s["status"] == "unchanged" for s in summaries) == len(recordings) - 1
-    page = (study_copy.output / "group" / "report.html").read_text()
+    page = (study_copy.output / "group" / "review.html").read_text()
     assert "Recordings that failed" in page
 
 
@@ -241,7 +241,7 @@ def test_group_summary_reports_effect_sizes_per_site_and_pooled(processed_study)
     # The low-count recording's flagged mismatch is left out of the group statistics.
     assert mmn.loc["pooled", "n_excluded"] == 1 and mmn.loc["pooled", "n_comparison"] == 2
     assert mmn.loc["pooled", "difference"] > 0 and np.isfinite(mmn.loc["pooled", "g"])
-    assert "Hedges" in (study.output / "group" / "report.html").read_text()
+    assert "Hedges" in (study.output / "group" / "review.html").read_text()
 
 
 def test_a_new_feature_of_an_existing_kind_needs_only_toml(processed_study, tmp_path):
@@ -307,7 +307,7 @@ def test_blinks_are_removed_from_kept_epochs(processed_study, truth):
     raw, markers, record = harmonise(read_raw(recording.path), site, paradigm, study.common_channels, "x")
     cleaning = clean(raw, paradigm, where="x", restored=record["restored_reference"],
                      line_frequency=site.line_frequency)
-    data, times, entries, ch_names, _ = _segment_and_reject(raw, markers, paradigm, cleaning)
+    data, times, entries, ch_names, _, _ = _segment_and_reject(raw, markers, paradigm, cleaning)
     sfreq = raw.info["sfreq"]
     course = blink_course(t["blinks_s"], raw.n_times, sfreq)
     fp1 = ch_names.index("Fp1")

@@ -94,7 +94,7 @@ SYNTH_MAY_LOAD = {"heschl", "heschl.errors", "heschl.sensors", "heschl.vocabular
 PIPELINE_STAGES = ("heschl.harmonise", "heschl.clean", "heschl.linenoise", "heschl.ocular",
                    "heschl.adaptive", "heschl.segment", "heschl.features",
                    "heschl.pipeline", "heschl.qc", "heschl.inputs", "heschl.arrays",
-                   "heschl.group", "heschl.report", "heschl.batch", "heschl.stages")
+                   "heschl.group", "heschl.pages", "heschl.batch", "heschl.stages")
 
 
 def _heschl_modules_after_import(module):

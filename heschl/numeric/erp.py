@@ -9,11 +9,9 @@ from typing import NamedTuple
 import numpy as np
 
 from heschl.errors import DefinitionError, InputDataError, did_you_mean, problem
+from heschl.vocabulary import POLARITIES
 
-__all__ = ["mean_amplitude", "peak", "Peak", "region_mean", "plus_minus_snr", "fractional_area_latency",
-           "POLARITIES"]
-
-POLARITIES = ("negative", "positive")
+__all__ = ["mean_amplitude", "peak", "Peak", "region_mean", "plus_minus_snr", "fractional_area_latency"]
 
 #: A sample within this fraction of the sample period of a window edge counts as on
 #: the edge, so float rounding of a time grid (0.1 vs 0.10000000000000003) is absorbed.

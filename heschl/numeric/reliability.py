@@ -143,7 +143,7 @@ def _recording_halves(n, method, n_splits, rng):
 
 
 def split_half_recording(trials, score_fn, *, method="random", n_splits=200, seed=0,
-                         batched=False, between_var=None, groups=None):
+                         batched=False, between_var=None, groups=None, full_score=None):
     """Subject-level precision of one recording's score from split halves of its trials.
 
     What it is: an estimate of the standard error of the full-trial score, ``se``, from
@@ -195,6 +195,9 @@ def split_half_recording(trials, score_fn, *, method="random", n_splits=200, see
         wave); each is split into halves independently, and half A of the score is
         ``score_fn(*(half A of each condition))``. Splits whose half score is NaN are
         left out of ``difference_sd``.
+    full_score : float, ndarray or None, default=None
+        The score of all trials when the caller has it already (shape (...)); None
+        scores all trials once more.
 
     Returns
     -------
@@ -217,8 +220,15 @@ def split_half_recording(trials, score_fn, *, method="random", n_splits=200, see
     halves = [_recording_halves(x.shape[0], method, n_splits, rng) for x in arrays]
     a = _score_subsets(arrays, [h[0] for h in halves], score_fn, batched, where)
     b = _score_subsets(arrays, [h[1] for h in halves], score_fn, batched, where)
-    everything = [np.arange(x.shape[0])[:, np.newaxis] for x in arrays]
-    score = _score_subsets(arrays, everything, score_fn, batched, where)[0]
+    if full_score is None:
+        everything = [np.arange(x.shape[0])[:, np.newaxis] for x in arrays]
+        score = _score_subsets(arrays, everything, score_fn, batched, where)[0]
+    else:
+        score = np.asarray(full_score, dtype=float)
+        if score.shape != a.shape[1:]:
+            raise DefinitionError(problem(
+                where, f"full_score has shape {score.shape}, the half scores {a.shape[1:]}",
+                "pass the score of all trials, as score_fn returns it, or None", key="full_score"))
     # A split whose half score is undefined (NaN) is left out of the difference SD.
     diff = a - b
     valid = np.isfinite(diff)

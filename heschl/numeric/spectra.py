@@ -9,12 +9,9 @@ import scipy.signal
 import scipy.stats
 
 from heschl.errors import DefinitionError, InputDataError, did_you_mean, problem
+from heschl.vocabulary import BAND_CLOSURES as CLOSURES
 
-__all__ = ["welch_psd", "band_power", "relative_band_power", "snr_neighbours", "CLOSURES"]
-
-#: Which band edges belong to the band: "left" = [lo, hi), "right" = (lo, hi],
-#: "both" = [lo, hi], "neither" = (lo, hi).
-CLOSURES = ("left", "right", "both", "neither")
+__all__ = ["welch_psd", "band_power", "relative_band_power", "snr_neighbours"]
 
 #: A bin within this fraction of the bin spacing of a band edge counts as on the edge,
 #: so rounding in the frequency grid (e.g. 8.000000000000002 Hz) does not move it.

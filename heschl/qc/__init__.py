@@ -1,6 +1,6 @@
 """Quality control of one recording: metrics, flags and verdict, and the curves the page draws.
 
-:func:`quality_record` builds the record written to qc.json; :mod:`heschl.report` and
+:func:`quality_record` builds the record written to qc.json; :mod:`heschl.pages` and
 the group tables read it and never recompute a metric or a flag.
 """
 from __future__ import annotations

@@ -411,7 +411,8 @@ def _record(model, names, types, candidates, folds, max_cluster, source, keep, b
     }
 
 
-def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_state=0, n_jobs=1, cv=5):
+def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_state=0, n_jobs=1, cv=5,
+                    keep_labels=False):
     """Learn per-channel thresholds on the detection data; drop and repair the analysis data.
 
     Parameters
@@ -434,6 +435,10 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
     cv : int, default=5
         Cross-validation folds; fewer when there are less than 3 validation epochs per
         fold (at least `MIN_ADAPTIVE_EPOCHS` epochs are required).
+    keep_labels : bool, default=False
+        Also return the per-cell decisions as ``record["labels"]``: ndarray of int8,
+        shape (n_epochs, n_channels), autoreject's reject-log labels (0 good, 1 beyond its
+        threshold, 2 interpolated), for the QC page's decision image.
 
     Returns
     -------
@@ -472,6 +477,8 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
     _interpolate(analysis, info, interp, keep, _fitted_dots(model))
     record = _record(model, names, types, candidates, folds, max_cluster, source, keep, by_consensus, interp,
                      clusters)
+    if keep_labels:
+        record["labels"] = labels.astype(np.int8)
     log.info("Adaptive rejection dropped %d of %d epochs (%.0f %%): %d by consensus, %d by "
              "interpolated cluster; %d kept epochs have interpolated channels",
              record["n_dropped"], n_epochs, 100.0 * record["n_dropped"] / n_epochs,

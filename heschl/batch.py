@@ -51,15 +51,19 @@ def up_to_date(study, recording, hashes):
     return old.get("key") == input_key(hashes, definitions_of(study, recording))
 
 
-def process_and_write(study, recording, force=False):
+def process_and_write(study, recording, force=False, decision=None):
     """One task: process a recording and write its outputs; returns a small summary.
+
+    ``decision`` is the recording's row of ``group/decisions.tsv`` (or None). A recording
+    whose outputs are up to date is not processed again, but its page is drawn again
+    from its files when the sign-off it shows is no longer the one on record.
 
     Never raises for a problem with the recording: the error becomes part of the summary.
     """
-    from .inputs import analysis_of, input_hashes
+    from .inputs import input_hashes
     from .outputs import write_recording
     from .pipeline import process_recording
-    from .pages import render_recording
+    from .signoff import signoff_for
 
     summary = {"site": recording.site, "participant_id": recording.participant_id,
                "paradigm": recording.paradigm, "group": recording.group, "status": "done", "error": None}
@@ -67,10 +71,11 @@ def process_and_write(study, recording, force=False):
         hashes = input_hashes(recording)  # read once: for the resume check and for provenance
         if not force and up_to_date(study, recording, hashes):
             summary["status"] = "unchanged"
+            summary["page_redrawn"] = _refresh_page(study, recording, decision)
             return summary
         result = process_recording(study, recording, hashes)
-        design = analysis_of(study, recording).paradigm.design
-        write_recording(study.output, recording, result, render_recording(recording, result, design))
+        signoff = signoff_for(study, recording, decision, result["provenance"]["key"])
+        write_recording(study.output, recording, result, lambda recorded: _page(recording, recorded, signoff))
         summary["verdict"] = result["qc"]["verdict"]
     except HeschlError as exc:
         summary.update(status="failed", error=str(exc))
@@ -78,6 +83,33 @@ def process_and_write(study, recording, force=False):
         log.debug("unexpected failure", exc_info=True)
         summary.update(status="failed", error=f"{recording.path.name}: {exc.__class__.__name__}: {exc}")
     return summary
+
+
+def _page(recording, recorded, signoff):
+    """The recording's page from its recorded results and its sign-off."""
+    from .pages import render_recording
+
+    return render_recording(recording, recorded["qc"], recorded["rows"], recorded["provenance"],
+                            recorded["evidence"], signoff)
+
+
+def _refresh_page(study, recording, decision):
+    """Draw an up-to-date recording's page again from its files when its sign-off changed.
+
+    Returns True when the page was drawn again.
+    """
+    from .outputs import read_recording, recording_paths, write_atomic
+    from .pages import shown_signoff
+    from .signoff import signoff_fingerprint, signoff_for
+
+    paths = recording_paths(study.output, recording)
+    recorded = read_recording(study.output, recording)
+    signoff = signoff_for(study, recording, decision, recorded["provenance"]["key"])
+    if shown_signoff(paths["page"]) == signoff_fingerprint(signoff):
+        return False
+    write_atomic(paths["page"], _page(recording, recorded, signoff))
+    log.info("%s: page drawn again for its sign-off (%s)", recording.stem, signoff["state"])
+    return True
 
 
 def run_study(study, *, jobs=1, force=False, cluster=None):
@@ -105,14 +137,18 @@ def run_study(study, *, jobs=1, force=False, cluster=None):
     from .inputs import discover
     from .outputs import write_dataset_description, write_group_outputs
 
+    from .signoff import read_decisions
+
     recordings = discover(study)
+    decisions = read_decisions(study.output)  # a malformed file stops the run before any work
+    decided = [decisions.get((r.site, r.participant_id, r.paradigm)) for r in recordings]
     write_dataset_description(study.output, study.name)
     jobs = os.cpu_count() if jobs == -1 else max(1, int(jobs))
     if cluster is not None:
-        summaries = _run_on_dask(study, recordings, force, cluster, jobs)
+        summaries = _run_on_dask(study, recordings, force, cluster, jobs, decided)
     elif jobs == 1 or len(recordings) < 2:
         log.info("Processing %d recordings in this process", len(recordings))
-        summaries = [process_and_write(study, r, force) for r in recordings]
+        summaries = [process_and_write(study, r, force, d) for r, d in zip(recordings, decided)]
     else:
         log.info("Processing %d recordings with %d worker(s)", len(recordings), jobs)
         summaries = [None] * len(recordings)
@@ -121,14 +157,14 @@ def run_study(study, *, jobs=1, force=False, cluster=None):
             # Largest files first (longest-processing-time first): the longest task does not
             # start last and leave one worker idle at the end.
             order = sorted(range(len(recordings)), key=lambda i: -_size(recordings[i]))
-            futures = {pool.submit(process_and_write, study, recordings[i], force): i for i in order}
+            futures = {pool.submit(process_and_write, study, recordings[i], force, decided[i]): i for i in order}
             for future in as_completed(futures):
                 i = futures[future]
                 summaries[i] = _outcome(future, recordings[i])
     for s in summaries:
         if s["status"] == "failed":
             log.warning("failed: %s", s["error"])
-    write_group_outputs(study, recordings, summaries)
+    write_group_outputs(study, recordings, summaries, decisions)
     return summaries
 
 
@@ -156,13 +192,13 @@ def _outcome(future, recording):
                          f"{str(exc).splitlines()[0] if str(exc) else ''})"}
 
 
-def _task(study, recording, force):
+def _task(study, recording, force, decision):
     """One recording on a Dask worker: one BLAS thread, as in the local pool."""
     _limit_threads()
-    return process_and_write(study, recording, force)
+    return process_and_write(study, recording, force, decision)
 
 
-def _run_on_dask(study, recordings, force, cluster, jobs):
+def _run_on_dask(study, recordings, force, cluster, jobs, decided):
     """Submit one task per recording to a Dask cluster; summaries in discovery order."""
     from .errors import InputDataError, problem
 
@@ -188,7 +224,8 @@ def _run_on_dask(study, recordings, force, cluster, jobs):
         log.info("Processing %d recordings on Dask (%s)", len(recordings), client.scheduler.address)
         # pure=False: a task's result depends on files, not only on its arguments.
         shared = client.scatter(study, broadcast=True)  # sent once, not once per task
-        futures = client.map(_task, [shared] * len(recordings), recordings, [force] * len(recordings), pure=False)
+        futures = client.map(_task, [shared] * len(recordings), recordings, [force] * len(recordings), decided,
+                             pure=False)
         # A lost worker fails its recording, not the run: every other summary is kept.
         return [_outcome(f, r) for f, r in zip(futures, recordings)]
     finally:

@@ -251,7 +251,7 @@ def _count(n, noun):
     return f"{n} {noun}{'' if n == 1 else 's'}"
 
 
-def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_frequency=None):
+def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_frequency=None, watch=None):
     """Line noise, pass band, bad channels (detect + interpolate), ocular correction,
     re-reference, on ``raw`` in place.
 
@@ -268,6 +268,11 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
         The recording reference channel restored as zeros (never judged flat).
     line_frequency : float or None, Hz
         The site's mains frequency.
+    watch : callable or None
+        Called as ``watch(stage, raw, ocular)`` just before ("before-ocular", ocular None)
+        and after ("after-ocular", the fitted `OcularCorrection`) the ocular step, so
+        :mod:`heschl.qc.evidence` can record what the step changed; it must not modify
+        ``raw``. Nothing is decided differently with or without it.
 
     Returns
     -------
@@ -308,9 +313,13 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
     log.info("%s interpolated%s", _count(len(bads), "bad channel"),
              (": " + ", ".join(f"{c} ({r})" for c, r in sorted(bads.items()))) if bads else "")
     method = ocular_method(raw, paradigm.cleaning.ocular)
+    if watch is not None:
+        watch("before-ocular", raw, None)
     ocular = OcularCorrection(method).fit(raw)
     if method != "none":
         raw[:, :] = ocular.apply(raw).get_data()
+    if watch is not None:
+        watch("after-ocular", raw, ocular)
     record["ocular"] = dict(ocular.record(), policy=paradigm.cleaning.ocular)
     if paradigm.cleaning.ocular == "auto" and method == "none":
         record["ocular"]["skipped_reason"] = NO_EOG_FOR_AUTO

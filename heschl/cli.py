@@ -1,4 +1,4 @@
-"""Command line: ``heschl demo``, ``heschl check``, ``heschl run``.
+"""Command line: ``heschl demo``, ``heschl check``, ``heschl run``, ``heschl decide``.
 
 Each command is a plain function ``run_<command>(...)`` returning data; :func:`main`
 wraps them with argparse and returns the exit code, so tests call it directly.
@@ -14,7 +14,7 @@ from pathlib import Path
 from . import __version__
 from .errors import DefinitionError, HeschlError
 
-__all__ = ["main", "run_demo", "run_check", "run_run"]
+__all__ = ["main", "run_demo", "run_check", "run_run", "run_decide"]
 
 log = logging.getLogger("heschl")
 
@@ -40,6 +40,32 @@ def run_run(study_path, jobs=1, force=False, cluster=None):
 
     study = load_study(study_path)
     return study, run_study(study, jobs=jobs, force=force, cluster=cluster)
+
+
+def run_decide(study_path, participant, paradigm, decision, reviewer, comment="", site=None):
+    """Record a reviewer's decision on one processed recording; returns (study, row).
+
+    The recording is named by participant id and paradigm (and site, when the id is not
+    unique across sites). The next ``heschl run`` shows it on the pages and carries it into
+    the group tables.
+    """
+    from .config import load_study
+    from .errors import InputDataError, problem
+    from .inputs import discover
+    from .signoff import record_decision
+
+    study = load_study(study_path)
+    participant = participant if participant.startswith("sub-") else f"sub-{participant}"
+    found = [r for r in discover(study) if r.participant_id == participant and r.paradigm == paradigm
+             and (site is None or r.site == site)]
+    if not found:
+        raise InputDataError(problem(study_path, f"no recording of {participant} for paradigm {paradigm}"
+                                     + (f" at site {site}" if site else ""),
+                                     "check the participant id and paradigm (heschl check lists the recordings)"))
+    if len(found) > 1:
+        raise InputDataError(problem(study_path, f"{participant} {paradigm} is recorded at "
+                                     f"{', '.join(r.site for r in found)}", "name the site with --site"))
+    return study, record_decision(study, found[0], decision, reviewer, comment)
 
 
 def run_demo(folder, size="demo", jobs=None, force=False):
@@ -74,7 +100,10 @@ def _print_run(study, summaries):
     done = sum(s["status"] == "done" for s in summaries)
     same = sum(s["status"] == "unchanged" for s in summaries)
     failed = [s for s in summaries if s["status"] == "failed"]
-    print(f"{len(summaries)} recording(s): {done} processed, {same} already up to date, {len(failed)} failed.")
+    redrawn = sum(bool(s.get("page_redrawn")) for s in summaries)
+    print(f"{len(summaries)} recording(s): {done} processed, {same} already up to date"
+          + (f" ({redrawn} page(s) drawn again for a new or changed sign-off)" if redrawn else "")
+          + f", {len(failed)} failed.")
     for s in failed:
         print(f"  failed: {s['error']}")
     print(f"Outputs: {os.path.relpath(study.output)}")
@@ -110,6 +139,15 @@ def _parser():
     run.add_argument("--cluster", metavar="ADDRESS", default=None,
                      help='run on Dask: a scheduler address (tcp://host:8786) or "local" for --jobs workers '
                      'on this machine; needs pip install "heschl[dask]" and paths every worker can see')
+    decide = sub.add_parser("decide", help="record a reviewer's decision (include or exclude) on a recording",
+                            epilog=EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter)
+    decide.add_argument("study", help="the study .toml file")
+    decide.add_argument("participant", help="participant id, e.g. sub-B03")
+    decide.add_argument("paradigm", help="paradigm name, e.g. oddball")
+    decide.add_argument("decision", choices=("include", "exclude"), help="what the recording is used for")
+    decide.add_argument("--by", required=True, metavar="INITIALS", help="the reviewer's initials")
+    decide.add_argument("--why", default="", metavar="TEXT", help="the reason (required to exclude)")
+    decide.add_argument("--site", default=None, help="the site, when the participant id is not unique")
     return parser
 
 
@@ -149,6 +187,15 @@ def main(argv=None):
         if args.command == "check":
             _, rows = run_check(args.study)
             return _print_check(rows)
+        if args.command == "decide":
+            study, row = run_decide(args.study, args.participant, args.paradigm, args.decision, args.by,
+                                    args.why, args.site)
+            from .signoff import decisions_path
+
+            print(f"{row['participant_id']} {row['paradigm']} at {row['site']}: {row['decision']} "
+                  f"({row['reviewer']}, {row['decided_on']}) recorded in {os.path.relpath(decisions_path(study.output))}; "
+                  "the next heschl run shows it on the pages and in the group tables.")
+            return 0
         if args.command == "run":
             study, summaries = run_run(args.study, jobs=args.jobs, force=args.force, cluster=args.cluster)
         else:

@@ -16,7 +16,8 @@ and ``reference="control"`` the columns are::
     paradigm, [feature_set,] feature, unit, scope, contrast,
     n_control, mean_control, sd_control, mean_low_control, mean_high_control,
     n_comparison, mean_comparison, sd_comparison, mean_low_comparison, mean_high_comparison,
-    difference, g, g_se, g_low, g_high, site_adjusted_g, n_excluded, n_missing
+    difference, g, g_se, g_low, g_high, site_adjusted_g, split_half, n_excluded, n_missing,
+    n_reviewer_excluded
 
 - ``contrast``: text ``"<comparison> - <reference>"``, the direction of ``difference`` and ``g``.
 - ``n_<group>``: recordings with a finite value that enter the numbers.
@@ -31,6 +32,9 @@ and ``reference="control"`` the columns are::
 - ``n_excluded``: rows of the two groups left out because their ``flags`` text is not
   empty (always 0 with ``exclude_flagged=False``).
 - ``n_missing``: rows of the two groups kept by the flag rule but with a NaN value.
+- ``n_reviewer_excluded``: rows left out because a reviewer's current decision excludes
+  their recording (table column ``decision`` equal to ``"exclude"``; see
+  :mod:`heschl.signoff`). Such rows count neither as flagged nor as missing.
 
 Pooled and site-adjusted effects
 --------------------------------
@@ -109,7 +113,7 @@ def _check_table(table):
 def _columns(key, groups):
     per_group = [f"{stat}_{g}" for g in groups for stat in ("n", "mean", "sd", "mean_low", "mean_high")]
     return [*key, "scope", "contrast", *per_group, "difference", "g", "g_se", "g_low", "g_high",
-            "site_adjusted_g", "split_half", "n_excluded", "n_missing"]
+            "site_adjusted_g", "split_half", "n_excluded", "n_missing", "n_reviewer_excluded"]
 
 
 def _site_adjusted_g(rows, comparison, reference):
@@ -203,18 +207,22 @@ def group_summary(table, *, groups=("control", "comparison"), reference="control
     rows["value"] = pd.to_numeric(rows["value"], errors="coerce")
     rows["_flagged"] = (_is_flagged(rows["flags"]) if exclude_flagged and "flags" in rows.columns
                         else False)
-    rows["_missing"] = ~rows["_flagged"] & ~np.isfinite(rows["value"].to_numpy(float))
+    rows["_decided"] = (rows["decision"].astype(str) == "exclude") if "decision" in rows.columns else False
+    rows["_flagged"] = rows["_flagged"] & ~rows["_decided"]
+    rows["_missing"] = ~rows["_flagged"] & ~rows["_decided"] & ~np.isfinite(rows["value"].to_numpy(float))
     _check_unique(rows, key)
     out = []
     for labels, feature_rows in rows.groupby(key, sort=True, dropna=False):
         scopes = [(s, feature_rows.loc[feature_rows["site"] == s]) for s in sorted(feature_rows["site"].unique())]
         for scope, scope_rows in [*scopes, (POOLED, feature_rows)]:
-            used = scope_rows.loc[~scope_rows["_flagged"] & ~scope_rows["_missing"]]
+            used = scope_rows.loc[~scope_rows["_flagged"] & ~scope_rows["_missing"] & ~scope_rows["_decided"]]
             numbers = _scope_row(used, scope_rows["_flagged"].sum(), scope_rows["_missing"].sum(),
                                  groups, comparison, reference, level)
+            numbers["n_reviewer_excluded"] = int(scope_rows["_decided"].sum())
             out.append({**dict(zip(key, labels)), "scope": scope, **numbers})
-    log.info("Group summary: %d features x scopes; left out %d flagged and %d missing of %d rows",
-             len(out), int(rows["_flagged"].sum()), int(rows["_missing"].sum()), len(rows))
+    log.info("Group summary: %d features x scopes; left out %d flagged, %d excluded by review and %d missing "
+             "of %d rows", len(out), int(rows["_flagged"].sum()), int(rows["_decided"].sum()),
+             int(rows["_missing"].sum()), len(rows))
     return pd.DataFrame(out, columns=_columns(key, groups))
 
 

@@ -16,14 +16,14 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from . import __version__
-from .errors import InputDataError, problem
+from .errors import DefinitionError, InputDataError, did_you_mean, problem
 
 __all__ = ["Recording", "PIPELINE_REVISION", "read_participants", "discover", "recording_files",
            "input_hashes", "input_key", "analysis_of", "definitions_of", "display_path"]
 
 #: Bumped whenever a change of code changes what a recording's outputs are, so that
 #: resuming redoes recordings written by older code (the package version moves slower).
-PIPELINE_REVISION = 4
+PIPELINE_REVISION = 5
 
 
 @dataclass(frozen=True)
@@ -59,23 +59,34 @@ def display_path(path):
         return str(path)
 
 
-def read_participants(path):
-    """participant_id -> group, from a tab-separated participants table."""
+def read_participants(path, labels=()):
+    """participant_id -> group, from a tab-separated participants table.
+
+    With declared ``labels`` (the study's ``[groups] labels``), a group the study does not
+    declare is refused; an empty or "n/a" group is allowed (that participant enters no
+    group comparison).
+    """
     if path is None:
         return {}
     import pandas as pd
 
-    table = pd.read_csv(path, sep="\t", dtype=str)
+    table = pd.read_csv(path, sep="\t", dtype=str, keep_default_na=False)
     if "participant_id" not in table.columns:
         raise InputDataError(problem(path, "has no participant_id column",
                                      "add a participant_id column (and a group column)"))
-    groups = table["group"] if "group" in table.columns else ["n/a"] * len(table)
+    groups = [g.strip() or "n/a" for g in table["group"]] if "group" in table.columns else ["n/a"] * len(table)
+    if labels:
+        for pid, group in zip(table["participant_id"], groups):
+            if group != "n/a" and group not in labels:
+                raise DefinitionError(problem(
+                    display_path(path), f'group "{group}" of {pid} is not declared in the study{did_you_mean(group, labels)}',
+                    f"add it to [groups] labels in the study file ({', '.join(labels)} now) or correct the table"))
     return dict(zip(table["participant_id"], groups))
 
 
 def discover(study):
     """Every recording the study's file patterns find, in a stable order."""
-    groups = read_participants(study.participants)
+    groups = read_participants(study.participants, study.groups)
     found = []
     for site in study.sites.values():
         pattern = re.compile(site.subject_pattern)

@@ -151,7 +151,8 @@ def remove_line_noise(raw, frequency, *, method="notch", picks="eeg"):
     record : dict
         ``method``; ``line_frequency_hz``; ``frequencies_hz`` (list of the frequencies
         removed, Hz, empty for "none"); ``ratio_before`` and ``ratio_after``: median over
-        the picked channels of `line_noise_ratio` at the line frequency, before and after
+        the picked channels that carry power (a channel of zeros has no ratio) of
+        `line_noise_ratio` at the line frequency, before and after
         (None when the neighbouring bands of the line frequency do not fit below Nyquist).
     """
     where = "remove_line_noise"
@@ -177,7 +178,10 @@ def _median_ratio(raw, frequency, picks):
     if not 0 < frequency - _NEIGHBOURS[1] < frequency + _NEIGHBOURS[1] < sfreq / 2:
         return None
     ratio = line_noise_ratio(raw.get_data(picks=picks), sfreq, frequency, neighbours=_NEIGHBOURS)
-    return float(np.median(ratio))
+    # A channel without power (a restored recording reference is all zeros before
+    # re-referencing) has no ratio; the median is over the channels that have one.
+    ratio = ratio[np.isfinite(ratio)]
+    return float(np.median(ratio)) if ratio.size else None
 
 
 def _fmt(value):

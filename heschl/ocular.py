@@ -107,6 +107,9 @@ class OcularCorrection:
     excluded_ : list of dict
         ``{"component": int, "correlation": float, "source": str}`` for each removed ICA
         component (signed correlation with the source it matched best).
+    component_correlations_ : ndarray, shape (n_components, n_sources), or None
+        Signed correlation of every ICA component with every EOG source (for ``"ica"``),
+        on the data it was fitted on; the QC page draws it.
     residual_correlation_ : dict or None
         ``{"before": float, "after": float, "by_source": {label: {"before", "after"}}}``:
         `eog_correlation` on the fitted data (windows above ``fit_reject`` left out), over
@@ -161,7 +164,7 @@ class OcularCorrection:
         self.sources_, self.source_labels_, self.stand_ins_used_ = [], [], False
         self.corrected_channels_, self.measured_channels_, self.skipped_reason_ = [], [], None
         self.coef_, self.ica_, self.n_components_, self.excluded_ = None, None, None, []
-        self.ica_converged_ = None
+        self.ica_converged_, self.component_correlations_ = None, None
         self.residual_correlation_, self.fit_excluded_s_ = None, 0.0
         if self.method == "none":
             return self
@@ -362,6 +365,7 @@ class OcularCorrection:
         if not self.ica_converged_:
             log.warning("FastICA stopped after %d iterations without converging", _MAX_ITER)
         r = _correlations(ica.get_sources(hp).get_data(), src)
+        self.component_correlations_ = r
         for k, row in enumerate(r):
             j = int(np.abs(row).argmax())
             if abs(row[j]) > self.threshold:

@@ -6,6 +6,7 @@ A crash never leaves a half-written file that looks complete: each file is writt
 from __future__ import annotations
 
 import json
+import logging
 import math
 import os
 from pathlib import Path
@@ -14,7 +15,10 @@ from . import __version__
 from .config.feature_set import MEASURE_KINDS
 from .vocabulary import AMPLITUDE_UNITS, POWER_UNITS
 
-__all__ = ["write_atomic", "recording_paths", "write_recording", "write_dataset_description",
+log = logging.getLogger(__name__)
+
+__all__ = ["write_atomic", "recording_paths", "write_recording", "read_recording", "read_rows",
+           "write_dataset_description",
            "write_group", "write_group_outputs", "FEATURE_COLUMNS", "FEATURE_SIDECAR"]
 
 FEATURE_COLUMNS = ["feature", "value", "unit", "kind", "signal", "region", "window", "n_trials",
@@ -107,6 +111,7 @@ def recording_paths(output, recording):
         "features_json": folder / f"{stem}_features.json",
         "qc": folder / f"{stem}_qc.json",
         "provenance": folder / f"{stem}_provenance.json",
+        "evidence": folder / f"{stem}_evidence.json",
         "page": folder / f"{stem}_review.html",
     }
 
@@ -119,8 +124,12 @@ def features_tsv(rows):
     return table.to_csv(sep="\t", index=False, na_rep="n/a", float_format="%.6g", lineterminator="\n")
 
 
-def write_recording(output, recording, result, page_html):
-    """Write features (+ sidecar), QC, provenance and the page; provenance goes last.
+def write_recording(output, recording, result, render_page):
+    """Write arrays, features (+ sidecar), QC, the page's evidence, the page, and provenance last.
+
+    ``render_page(recorded)`` gets the recording's results as they read back from the
+    files (see :func:`read_recording`) and returns the page's HTML, so a page drawn now
+    and a page drawn again later from disk are the same page.
 
     Provenance is the marker of a complete recording: resuming trusts a recording only
     when its provenance exists and names the same input key.
@@ -135,10 +144,32 @@ def write_recording(output, recording, result, page_html):
     result["provenance"]["arrays"] = written
     write_atomic(paths["features"], features_tsv(result["rows"]))
     write_atomic(paths["features_json"], _json(FEATURE_SIDECAR))
-    write_atomic(paths["qc"], _json(_finite(result["qc"])))
-    write_atomic(paths["page"], page_html)
-    write_atomic(paths["provenance"], _json(_finite(result["provenance"])))
+    texts = {name: _json(_finite(result[name])) for name in ("qc", "evidence", "provenance")}
+    write_atomic(paths["qc"], texts["qc"])
+    write_atomic(paths["evidence"], texts["evidence"])
+    recorded = {name: json.loads(text) for name, text in texts.items()}
+    recorded["rows"] = read_rows(paths["features"])
+    write_atomic(paths["page"], render_page(recorded))
+    write_atomic(paths["provenance"], texts["provenance"])
     return paths
+
+
+def read_rows(path):
+    """A features table as a list of dicts, None where the table says n/a."""
+    import pandas as pd
+
+    table = pd.read_csv(path, sep="\t", na_values=["n/a"], keep_default_na=False)
+    return [{k: (None if isinstance(v, float) and not math.isfinite(v) else v) for k, v in row.items()}
+            for row in table.to_dict("records")]
+
+
+def read_recording(output, recording):
+    """A processed recording's results as written: ``qc``, ``evidence``, ``provenance``
+    (dicts) and ``rows`` (the features table); what every page is drawn from."""
+    paths = recording_paths(output, recording)
+    out = {name: json.loads(paths[name].read_text(encoding="utf-8")) for name in ("qc", "evidence", "provenance")}
+    out["rows"] = read_rows(paths["features"])
+    return out
 
 
 def write_dataset_description(output, study_name):
@@ -158,39 +189,91 @@ def write_group(output, table, qc_table, page_html=None, summary=None):
                                                             float_format="%.6g", lineterminator="\n"))
     write_atomic(folder / "features.tsv", table.to_csv(sep="\t", index=False, na_rep="n/a",
                                                        float_format="%.6g", lineterminator="\n"))
-    write_atomic(folder / "qc.tsv", qc_table.to_csv(sep="\t", index=False, na_rep="n/a", lineterminator="\n"))
+    write_atomic(folder / "qc.tsv", qc_table.to_csv(sep="\t", index=False, na_rep="n/a", float_format="%.6g",
+                                                    lineterminator="\n"))
     if page_html is not None:
         write_atomic(folder / "review.html", page_html)
     return folder
 
 
-def write_group_outputs(study, recordings, summaries):
-    """Group feature table, QC table and study page, read back from the written files."""
+def write_group_outputs(study, recordings, summaries, decisions=None):
+    """Group feature table, QC table and study page, read back from the written files.
+
+    ``decisions`` (from :func:`heschl.signoff.read_decisions`; read here when None) are
+    carried into both tables as columns: a current "exclude" keeps the recording's rows
+    but leaves them out of the group summary.
+    """
     import pandas as pd
 
     from .group import group_summary
     from .pages import render_study
+    from .qc.study import qc_columns, study_view
+    from .signoff import read_decisions, signoff_for
 
-    tables, qc_rows = [], []
+    decisions = read_decisions(study.output) if decisions is None else decisions
+    tables, qc_rows, done = [], [], []
     for recording, summary in zip(recordings, summaries):
         if summary["status"] == "failed":
             continue
         paths = recording_paths(study.output, recording)
+        key = json.loads(paths["provenance"].read_text(encoding="utf-8"))["key"]
+        signoff = signoff_for(study, recording, decisions.get((recording.site, recording.participant_id,
+                                                               recording.paradigm)), key)
+        decided = {"decision": signoff["decision"] if signoff["state"] == "current" else None,
+                   "decision_state": signoff["state"], "decision_reason": signoff["comment"] or None}
         table = pd.read_csv(paths["features"], sep="\t", na_values=["n/a"], keep_default_na=False)
         table.insert(0, "paradigm", recording.paradigm)
         table.insert(0, "group", recording.group)
         table.insert(0, "site", recording.site)
         table.insert(0, "participant_id", recording.participant_id)
+        table["decision"], table["decision_reason"] = decided["decision"], decided["decision_reason"]
         tables.append(table)
         qc = json.loads(paths["qc"].read_text(encoding="utf-8"))
         qc_rows.append({"participant_id": recording.participant_id, "site": recording.site,
                         "group": recording.group, "paradigm": recording.paradigm, "verdict": qc["verdict"],
+                        **decided, "reviewer": signoff["reviewer"] or None,
+                        "decided_on": signoff["decided_on"] or None, **qc_columns(qc),
                         "flags": " | ".join(f["message"] for f in qc["flags"]),
                         "page": os.path.relpath(paths["page"], Path(study.output) / "group")})
+        done.append(recording)
+    _orphans(decisions, done)
     table = pd.concat(tables, ignore_index=True) if tables else pd.DataFrame()
-    qc_table = pd.DataFrame(qc_rows)
+    qc_table = _qc_table(qc_rows)
     failures = [s for s in summaries if s["status"] == "failed"]
-    summary = group_summary(table) if len(table) and set(table["group"]) >= {"control", "comparison"} else None
-    write_group(study.output, table, qc_table, render_study(study.name, table, qc_table, failures, summary),
-                summary)
+    summary, groups = None, None
+    if len(study.groups) == 2 and len(table):
+        groups = (study.reference_group, next(g for g in study.groups if g != study.reference_group))
+        summary = group_summary(table, groups=groups, reference=study.reference_group)
+    elif len(table) and not study.groups and (set(table["group"]) - {"n/a"}):
+        log.warning(
+            "%s: participants belong to groups %s but the study declares none; add [groups] labels and "
+            "reference to the study file for the group summary", study.source,
+            ", ".join(sorted(set(table["group"]) - {"n/a"})))
+    view = study_view(study.output, done, table, qc_table)
+    write_group(study.output, table, qc_table, render_study(study.name, table, qc_table, failures, summary,
+                                                            view, groups), summary)
     return table, qc_table
+
+
+def _qc_table(rows):
+    """One row per recording: identity, verdict and decision, the metric columns, then
+    the flag texts and the page link; counts as integers (n/a where not measured)."""
+    import pandas as pd
+
+    table = pd.DataFrame(rows)
+    if not len(table):
+        return table
+    last = ["flags", "page"]
+    table = table[[c for c in table.columns if c not in last] + last]
+    for column in table.columns:
+        if column.startswith("kept_") or column in ("channels_interpolated", "n_flags"):
+            table[column] = pd.to_numeric(table[column], errors="coerce").round().astype("Int64")
+    return table
+
+
+def _orphans(decisions, done):
+    """Say which recorded decisions match no processed recording (kept in the file, not applied)."""
+    known = {(r.site, r.participant_id, r.paradigm) for r in done}
+    for site, pid, paradigm in sorted(set(decisions) - known):
+        log.warning("decisions.tsv: the decision on %s %s at %s matches no processed "
+                                            "recording; it is kept and not applied", pid, paradigm, site)

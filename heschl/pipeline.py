@@ -9,6 +9,7 @@ decisions; QC is built in :mod:`heschl.qc`; it returns plain data that
 from __future__ import annotations
 
 import logging
+import os
 import time
 
 from . import __version__
@@ -40,8 +41,9 @@ def process_recording(study, recording, hashes=None):
     Returns
     -------
     result : dict
-        ``rows`` (feature rows), ``qc``, ``provenance``, ``curves`` (arrays the QC page
-        plots) and ``arrays`` (model-ready datasets), all plain data.
+        ``rows`` (feature rows), ``qc``, ``provenance``, ``evidence`` (what the QC page
+        draws, JSON-ready; see :func:`heschl.qc.evidence.recording_evidence`) and
+        ``arrays`` (model-ready datasets), all plain data.
     """
     from .runlog import recording_context
 
@@ -55,7 +57,8 @@ def _process(study, recording, hashes):
     from .clean import clean
     from .features import Source, applicable, compute_features
     from .harmonise import harmonise, read_raw
-    from .qc import curves, quality_record
+    from .qc import quality_record
+    from .qc.evidence import OcularWatch, channel_spectra, recording_evidence, spectrum_limit
 
     analysis = analysis_of(study, recording)
     paradigm, site = analysis.paradigm, study.sites[recording.site]
@@ -70,26 +73,38 @@ def _process(study, recording, hashes):
     analysis, skipped_sets = applicable(analysis, harmonised["channels"], where,
                                         set(harmonised["channel_types"].values()))
     clock.lap("harmonise")
+    # Spectra of the harmonised data before clean() changes raw in place: Welch averages
+    # only, read a few channels at a time, so no second copy of the recording is kept.
+    fmax = spectrum_limit(raw.info["sfreq"], site.line_frequency)
+    spectra_before = channel_spectra(raw, fmax)
+    watch = OcularWatch()
     cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
-                     restored=harmonised["restored_reference"], line_frequency=site.line_frequency)
+                     restored=harmonised["restored_reference"], line_frequency=site.line_frequency, watch=watch)
+    spectra_after = channel_spectra(raw, fmax)
     clock.lap("clean")
     trials, times, entries, ch_names, rejection, counts = _segment_and_reject(raw, markers, paradigm, cleaning)
+    cell_labels = rejection.pop("cell_labels", None)  # for the page's decision image, not provenance
     clock.lap("segment and reject")
     source = Source(trials, times, ch_names, raw.info["sfreq"], paradigm,
                     ch_types=[harmonised["channel_types"][c] for c in ch_names])
     rows = [row for fs in analysis.feature_sets for row in compute_features(fs, source, paradigm.rejection.min_trials)]
     log.info("%d features from %d feature set(s)", len(rows), len(analysis.feature_sets))
-    page_curves = curves(analysis, source)
     clock.lap("features")
     arrays = recording_arrays(analysis, source, recording, key, definitions)
     clock.lap("arrays")
     steps = {"harmonised": harmonised, "cleaning": cleaning, "markers": markers, "rejection": rejection,
              "counts": counts}
     qc = quality_record(recording, analysis, source, steps, rows, skipped_sets)
+    evidence = recording_evidence(analysis, source, raw.info, {
+        "cleaning": cleaning, "entries": entries, "cell_labels": cell_labels, "ocular": watch.record_,
+        "spectra": (spectra_before[0], spectra_before[1], spectra_after[1]), "line_frequency": site.line_frequency})
+    clock.lap("evidence")
     log.info("Verdict %s (%d flag%s)", qc["verdict"], len(qc["flags"]), "" if len(qc["flags"]) == 1 else "s")
     provenance = {
         "recording": {"site": recording.site, "participant_id": recording.participant_id,
-                      "group": recording.group, "paradigm": recording.paradigm, "file": where,
+                      "group": recording.group, "paradigm": recording.paradigm,
+                      # relative to the study file, so outputs do not depend on the working folder
+                      "file": os.path.relpath(recording.path, study.root),
                       "datatype": recording.datatype},
         "inputs_sha256": hashes,
         "key": key,
@@ -100,7 +115,7 @@ def _process(study, recording, hashes):
         "versions": package_versions(),
         "timings_s": clock.times,
     }
-    return {"rows": rows, "qc": qc, "provenance": provenance, "curves": page_curves, "arrays": arrays}
+    return {"rows": rows, "qc": qc, "provenance": provenance, "evidence": evidence, "arrays": arrays}
 
 
 def _segment_and_reject(raw, markers, paradigm, cleaning):

@@ -145,7 +145,9 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
     entries : list of dict
         The log with each trial's fate filled in.
     record : dict
-        What the rejection method decided overall.
+        What the rejection method decided overall. With the fixed and adaptive methods it
+        holds ``cell_labels`` (ndarray of int8, shape (n_cut, n_channels): 0 within the
+        limit, 1 beyond it, 2 interpolated), for the QC page; not JSON-ready.
     """
     if baseline is not None and len(x):
         sel = (times >= baseline[0]) & (times <= baseline[1])
@@ -189,10 +191,14 @@ def _decide(x, detection, ch_names, paradigm, info, types):
     reasons = [None] * len(x)
     if method == "fixed" and len(x):
         limits, shown = _fixed_limits(paradigm.rejection, types)
-        keep, found = fixed_threshold(peak_to_peak(x), limits, ch_names, types=types)
+        ptp = peak_to_peak(x)
+        keep, found = fixed_threshold(ptp, limits, ch_names, types=types)
         reasons = ["peak-to-peak: " + "; ".join(r.replace("peak-to-peak ", "", 1) for r in found[i])
                    for i in range(len(x))]
         record = {"method": "fixed", "limits": shown}
+        # Which cells were beyond their limit (fixed_threshold's rule), for the QC page's
+        # decision image; the pipeline takes it out of the record before provenance.
+        record["cell_labels"] = (~np.isfinite(ptp) | (ptp > limits)).astype(np.int8)
         log.info("Fixed peak-to-peak limits dropped %d of %d trial%s", int((~keep).sum()), len(x),
                  "" if len(x) == 1 else "s")
         if "eeg" in types:
@@ -206,10 +212,10 @@ def _decide(x, detection, ch_names, paradigm, info, types):
 
         cleaned, keep, found, record = adaptive_reject(x, detection, info,
                                                        max_cluster=paradigm.rejection.max_cluster,
-                                                       random_state=0, n_jobs=1)
+                                                       random_state=0, n_jobs=1, keep_labels=True)
         full = x.copy()
         full[keep] = cleaned
-        record = dict(record, method="adaptive", interpolated_epochs=full)
+        record = dict(record, method="adaptive", interpolated_epochs=full, cell_labels=record.pop("labels"))
         return keep, list(found), record
     return keep, reasons, {"method": "none"}
 

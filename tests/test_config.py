@@ -650,3 +650,51 @@ def test_rest_band_defaults_follow_the_ifcn_glossary():
                     if band_power(grid, psd, core.bands[b], closed=core.band_closures[b]) > 0]
     assert owner == {7.99: ["theta"], 8.0: ["alpha"], 13.0: ["alpha"], 13.5: [], 30.0: ["beta"],
                      30.01: ["gamma"]}
+
+
+# -- [groups]: the labels a study compares and its reference group ----------------------------
+
+
+def _with_groups(text):
+    return _edit(STUDY, 'participants = "participants.tsv"\n',
+                 'participants = "participants.tsv"\n\n' + text + "\n")
+
+
+def test_groups_declared_with_reference(workdir):
+    (workdir / "study.toml").write_text(_with_groups('[groups]\nlabels = ["healthy", "patient"]\nreference = "healthy"'))
+    study = config.load_study(workdir / "study.toml")
+    assert study.groups == ("healthy", "patient") and study.reference_group == "healthy"
+
+
+def test_groups_absent_means_no_declared_groups(workdir):
+    (workdir / "study.toml").write_text(STUDY)
+    study = config.load_study(workdir / "study.toml")
+    assert study.groups == () and study.reference_group is None
+
+
+@pytest.mark.parametrize("text, message", [
+    ('[groups]\nlabels = ["healthy", "patient"]', "groups.reference: missing required key"),
+    ('[groups]\nlabels = ["healthy", "patient"]\nreference = "helthy"',
+     'groups.reference: "helthy" is not one of the labels (did you mean "healthy"?)'),
+    ('[groups]\nlabels = ["a", "b", "c"]\nreference = "a"', "groups.labels: 3 groups declared"),
+    ('[groups]\nlabels = ["a", "a"]\nreference = "a"', "groups.labels: repeats a; list each name once."),
+])
+def test_groups_refused_in_one_line(workdir, text, message):
+    (workdir / "study.toml").write_text(_with_groups(text))
+    with pytest.raises(DefinitionError) as info:
+        config.load_study(workdir / "study.toml")
+    assert str(info.value).startswith("study.toml: " + message), str(info.value)
+    assert "\n" not in str(info.value)
+
+
+def test_undeclared_group_in_participants_is_refused(workdir):
+    from heschl.inputs import read_participants
+
+    (workdir / "participants.tsv").write_text("participant_id\tgroup\nsub-01\thealthy\nsub-02\tpatinet\nsub-03\t\n")
+    with pytest.raises(DefinitionError) as info:
+        read_participants(workdir / "participants.tsv", ("healthy", "patient"))
+    assert str(info.value) == ('participants.tsv: group "patinet" of sub-02 is not declared in the study '
+                               '(did you mean "patient"?); add it to [groups] labels in the study file '
+                               "(healthy, patient now) or correct the table.")
+    assert read_participants(workdir / "participants.tsv") == {"sub-01": "healthy", "sub-02": "patinet",
+                                                             "sub-03": "n/a"}

@@ -161,7 +161,8 @@ def test_summary_columns_scopes_and_pooled_numbers(rng):
         "paradigm", "feature", "unit", "scope", "contrast",
         "n_control", "mean_control", "sd_control", "mean_low_control", "mean_high_control",
         "n_comparison", "mean_comparison", "sd_comparison", "mean_low_comparison", "mean_high_comparison",
-        "difference", "g", "g_se", "g_low", "g_high", "site_adjusted_g", "split_half", "n_excluded", "n_missing"]
+        "difference", "g", "g_se", "g_low", "g_high", "site_adjusted_g", "split_half", "n_excluded", "n_missing",
+        "n_reviewer_excluded"]
     assert list(summary["scope"]) == ["alder", "birch", POOLED]
     assert set(summary["contrast"]) == {"comparison - control"}
     # Pooled = all recordings together, no site term.

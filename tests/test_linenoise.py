@@ -162,3 +162,13 @@ def test_unknown_method_suggests_the_closest():
     with pytest.raises(DefinitionError, match=r'method "notsh" is not known \(did you mean "notch"\?\); '
                                               r"use one of notch, fit, none"):
         remove_line_noise(raw, 50.0, method="notsh")
+
+
+def test_a_channel_of_zeros_does_not_hide_line_noise(rng):
+    # A restored recording reference is a channel of zeros before re-referencing: it has no
+    # ratio (0/0), and the median over channels must come from the others, so 100 uV of
+    # mains with line_noise = "none" is still measured (it was NaN before).
+    raw = _raw(rng, amplitude=100 * UV)
+    raw._data[3] = 0.0
+    record = remove_line_noise(raw, 50.0, method="none")
+    assert record["ratio_before"] > 20 and record["ratio_after"] == record["ratio_before"]

@@ -318,6 +318,36 @@ def test_bad_channels_match_their_truth(tmp_path, short):
     assert seen == {"flat", "noisy", "popping"}
 
 
+def test_cedar_broken_leads_are_bad_in_every_recording(tmp_path, short):
+    # The planted site difference (docs/SCENARIO.md, "A site that stands out"): Cedar's worn
+    # cap has the same broken leads in every recording, on top of the random bad channels.
+    from heschl.synth.sites import SITE_DIFFERENCE
+
+    leads = SITE_DIFFERENCE["channels"]
+    assert SITE_DIFFERENCE["site"] == "cedar" and len(leads) == 5
+    assert not set(leads) & set(REGION + ["P3", "Pz", "P4", "O1", "Oz", "O2", "TP9", "TP10", "Fp1", "Fp2"])
+    for number, paradigm in ((1, "oddball"), (2, "rest")):
+        truth, path = _write(tmp_path / str(number), "cedar", paradigm, subject=f"S{number:02d}")
+        broken = {b["standard_name"]: b["kind"] for b in truth["bad_channels"] if b["cause"] == "broken-lead"}
+        assert broken == leads
+        # A random draw that falls on a broken lead is left to the broken lead.
+        assert {b["cause"] for b in truth["bad_channels"]} <= {"random", "broken-lead"}
+        raw = _read(path)
+        sos = scipy.signal.butter(4, 1.0, btype="highpass", fs=1000.0, output="sos")
+        filtered = scipy.signal.sosfiltfilt(sos, raw.get_data(picks="eeg"), axis=1)
+        deviation = np.abs(filtered - np.median(filtered, axis=1, keepdims=True))
+        spreads = dict(zip(raw.copy().pick("eeg").ch_names, 1.4826 * np.median(deviation, axis=1)))
+        typical = np.median(list(spreads.values()))
+        for name, kind in leads.items():
+            assert spreads[name] < 0.05 * typical if kind == "flat" else spreads[name] > 3 * typical
+    truth, _ = _write(tmp_path / "alder", "alder", "rest")
+    assert {b["cause"] for b in truth["bad_channels"]} == {"random"}
+    truth, _ = _write(tmp_path / "off", "cedar", "rest", artefacts=False)
+    assert truth["bad_channels"] == []
+    study = json.loads((make_study(tmp_path / "study", size="test", seed=SEED).parent / "truth.json").read_text())
+    assert study["site_difference"] == dict(SITE_DIFFERENCE, applied=True)
+
+
 def test_saturation_pins_every_channel_to_the_rail(tmp_path, short):
     truth, path = _write(tmp_path, "alder", "oddball")
     raw = _read(path)

@@ -142,3 +142,5 @@ class Study:
     analyses: tuple
     sites: dict
     document: dict = field(repr=False, compare=False)
+    groups: tuple = ()               # declared group labels ([groups] labels); () when undeclared
+    reference_group: object = None   # the reference among them ([groups] reference), or None

@@ -10,11 +10,11 @@ from .feature_set import load_feature_set
 from .files import _display, _read_toml, resolve_definition
 from .model import Analysis, Site, Study
 from .paradigm import load_paradigm
-from .sections import _Section, _num
+from .sections import _REQUIRED, _Section, _num
 
 __all__ = ["load_study"]
 
-_STUDY_KEYS = {"name", "output", "participants", "common_channels", "analyses", "sites"}
+_STUDY_KEYS = {"name", "output", "participants", "common_channels", "analyses", "sites", "groups"}
 _SITE_KEYS = {"datatype", "recording_reference", "line_frequency", "trigger_delay_ms", "files", "markers",
               "channel_aliases", "eog_channels", "subject_pattern", "bad_channels"}
 
@@ -36,10 +36,34 @@ def load_study(path):
     common = top.strings("common_channels", default=())
     analyses = _analyses(top, root)
     sites = _sites(top, {a.paradigm.name: a.paradigm for a in analyses})
+    groups, reference = _groups(top)
     return Study(name=name, source=str(path), root=root,
                  output=output if output.is_absolute() else root / output,
                  participants=participants, common_channels=common, analyses=analyses,
-                 sites=sites, document=doc)
+                 sites=sites, document=doc, groups=groups, reference_group=reference)
+
+
+def _groups(top):
+    """The declared group labels and the reference group (``[groups]``).
+
+    One label (a single-group study) needs no reference; with two, the reference is
+    required and the group summary compares the other group against it. Comparisons of
+    more than two groups are not supported.
+    """
+    if top.raw("groups", default=None) is None:
+        return (), None
+    section = top.sub("groups", {"labels", "reference"})
+    labels = section.strings("labels")
+    if not labels:
+        section.fail("labels", "no group labels given", 'list the labels of participants.tsv, e.g. ["control", "patient"]')
+    if len(labels) > 2:
+        section.fail("labels", f"{len(labels)} groups declared; heschl compares two groups",
+                     "declare two labels (run separate studies for other pairs)")
+    reference = section.string("reference", default=None if len(labels) == 1 else _REQUIRED)
+    if reference is not None and reference not in labels:
+        section.fail("reference", f'"{reference}" is not one of the labels{did_you_mean(reference, labels)}',
+                     "choose the reference among [groups] labels")
+    return tuple(labels), reference
 
 
 def _analyses(top, root):

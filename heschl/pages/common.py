@@ -9,7 +9,11 @@ from __future__ import annotations
 import base64
 import io
 
-__all__ = ["CAUTION", "PALETTE", "environment", "css", "png", "figure", "colours", "num"]
+__all__ = ["CAUTION", "PALETTE", "environment", "css", "png", "figure", "colours", "num", "shown_signoff",
+           "SIGNOFF_META"]
+
+#: Name of the page's meta tag that carries the fingerprint of the sign-off it shows.
+SIGNOFF_META = "heschl-signoff"
 
 CAUTION = ("Research software, not a medical device. These pages support quality review of research "
            "recordings; clinical interpretation belongs to licensed practice and local rules.")
@@ -19,7 +23,9 @@ CAUTION = ("Research software, not a medical device. These pages support quality
 #: in greyscale.
 PALETTE = {"first": "#1b5e8c", "second": "#e08a1e", "contrast": "#2b2b2b", "third": "#3aa58f",
            "fourth": "#b8417a", "window": "#efe3b8", "muted": "#9a9a9a",
-           "kept": "#d8e6ef", "interpolated": "#e08a1e", "rejected": "#8c1b2f", "skipped": "#bdbdbd"}
+           "kept": "#d8e6ef", "interpolated": "#e08a1e", "rejected": "#8c1b2f", "skipped": "#bdbdbd",
+           # recording page evidence: the rest of a rejected trial's cells, the head outline
+           "dropped": "#f3c6cc", "outline": "#5c6670"}
 
 
 def environment():
@@ -78,3 +84,17 @@ def figure(width=6.4, height=3.0, ncols=1, nrows=1, **kwargs):
 def colours():
     """The series colours, in order."""
     return [PALETTE["first"], PALETTE["second"], PALETTE["contrast"], PALETTE["third"], PALETTE["fourth"]]
+
+
+def shown_signoff(path):
+    """The sign-off fingerprint a page on disk shows (its ``heschl-signoff`` meta tag), or
+    None when the page is missing or carries none."""
+    import re
+
+    try:
+        with open(path, encoding="utf-8") as fh:
+            head = fh.read(4096)
+    except OSError:
+        return None
+    found = re.search(rf'<meta name="{SIGNOFF_META}" content="([^"]*)"', head)
+    return found.group(1) if found else None

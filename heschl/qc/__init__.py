@@ -1,4 +1,4 @@
-"""Quality control of one recording: metrics, flags and verdict, and the curves the page draws.
+"""Quality control of one recording: metrics, flags and verdict, and the evidence the page draws.
 
 :func:`quality_record` builds the record written to qc.json; :mod:`heschl.pages` and
 the group tables read it and never recompute a metric or a flag.
@@ -6,12 +6,13 @@ the group tables read it and never recompute a metric or a flag.
 from __future__ import annotations
 
 from . import flags as _flags
-from .curves import curves
+from . import evidence
+from .evidence import recording_evidence
 from .flags import FLAG_LEVELS, verdict
 from .metrics import (channel_record, kept_blinks, marker_counts, mastoid_inversion, ocular_record, snr,
                       trial_counts, vertical_eog)
 
-__all__ = ["quality_record", "curves", "verdict", "FLAG_LEVELS", "trial_counts", "kept_blinks",
+__all__ = ["quality_record", "evidence", "recording_evidence", "verdict", "FLAG_LEVELS", "trial_counts", "kept_blinks",
            "vertical_eog"]
 
 
@@ -63,5 +64,6 @@ def quality_record(recording, analysis, source, steps, rows, skipped_sets):
         "reference": cleaning["reference"],
         "mastoid_inversion": inversion,
         "ocular": ocular,
+        "line_noise": cleaning.get("line_noise"),
         "feature_sets": {"used": [fs.name for fs in analysis.feature_sets], "not_applicable": skipped_sets},
     }

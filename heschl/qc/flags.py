@@ -77,7 +77,7 @@ def cleaning_flags(cleaning, limits, paradigm):
                           f"after correction (limit {limits['max_eog_correlation']:g})"))
     line = cleaning.get("line_noise") or {}
     ratio = line.get("ratio_after")
-    if ratio is not None and line.get("line_frequency_hz", 1e9) < paradigm.cleaning.pass_band[1] \
+    if ratio is not None and line.get("line_frequency_hz", 1e9) <= paradigm.cleaning.pass_band[1] \
             and ratio > limits["max_line_ratio"]:
         flags.append(flag("caution", "line-noise", f"line-noise power {ratio:.1f} x its neighbours after removal "
                           f"(limit {limits['max_line_ratio']:g})"))

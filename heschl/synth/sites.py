@@ -23,6 +23,7 @@ __all__ = [
     "PARADIGMS",
     "GROUPS",
     "SIZES",
+    "SITE_DIFFERENCE",
     "old_style_name",
 ]
 
@@ -109,6 +110,10 @@ class SiteSpec:
         ``"eeg"`` or ``"meg"``.
     paradigms : tuple of str
         Paradigms the site records.
+    broken_leads : dict
+        ``{channel: kind}``: electrodes of a worn cap whose leads are broken, bad in
+        every recording of the site (10-10 names; kinds of
+        :data:`heschl.synth.artefacts.BAD_KINDS`). Empty at a site with a sound cap.
     """
 
     name: str
@@ -123,6 +128,7 @@ class SiteSpec:
     eog: tuple = ()
     modality: str = "eeg"
     paradigms: tuple = PARADIGMS
+    broken_leads: dict = field(default_factory=dict)
 
     def file_channel_names(self):
         """Return the EEG channel names as the site spells them in its files."""
@@ -183,6 +189,7 @@ SITE_SPECS = {
         name="cedar", letter="C", file_format="fif", sfreq=1000.0,
         channels=CHANNELS_64, reference="average", line_frequency=50.0, trigger_delay_s=0.0,
         markers=_eeg_markers(1, 2, 1, 10, 20), eog=("HEOG", "VEOG"),
+        broken_leads={"F7": "noisy", "FC6": "flat", "CP5": "noisy", "CP2": "noisy", "P8": "flat"},
     ),
     "dogwood": SiteSpec(
         name="dogwood", letter="D", file_format="meg-fif", sfreq=1000.0,
@@ -190,4 +197,23 @@ SITE_SPECS = {
         markers={"oddball": {"standard": 1, "deviant": 2}}, eog=("EOG061",),
         modality="meg", paradigms=("oddball",),
     ),
+}
+
+
+#: The one planted difference between the EEG sites that a reviewer should find on the
+#: study page: Cedar's cap is worn, and five of its electrodes have broken leads, so
+#: every Cedar recording carries five bad channels more than the one or two drawn at
+#: random (6-7 of the 33 common channels, where the other sites have 1-2). The leads lie
+#: apart from each other, away from the fronto-central and posterior regions of the core
+#: features, the mastoids and the frontal blink channels, so no feature is measured on a
+#: repaired channel. Five, not fewer: with two recordings per site (size "test") a site
+#: difference must be large to be told from chance.
+SITE_DIFFERENCE = {
+    "site": "cedar",
+    "kind": "broken-leads",
+    "channels": dict(SITE_SPECS["cedar"].broken_leads),
+    "description": ("Cedar's cap is worn: five electrodes (F7, CP5 and CP2 noisy, FC6 and P8 flat) have "
+                    "broken leads and are bad in every Cedar recording, on top of the one or two bad "
+                    "channels drawn at random; Cedar's recordings therefore have more channels "
+                    "interpolated than those of the other sites."),
 }

@@ -31,7 +31,8 @@ from .brain import SFREQ, background_patterns, draw_subject_params, expected_val
 from .brain import scalp_potentials
 from .events import make_schedule
 from .sites import (
-    ALL_SITES, COMMON_CHANNELS, GROUPS, MEG_SITES, PARADIGMS, SITE_SPECS, SITES, SIZES,
+    ALL_SITES, COMMON_CHANNELS, GROUPS, MEG_SITES, PARADIGMS, SITE_DIFFERENCE, SITE_SPECS, SITES,
+    SIZES,
 )
 from .writers import eeg_fif_info, write_brainvision, write_edf, write_fif
 
@@ -148,15 +149,25 @@ def _scalp_artefacts(scalp, schedule, keys, seed, low_count):
     return truth
 
 
-def _bad_channels(data, names, spec, rng, common_channels):
-    """Choose the recording's bad channels and corrupt them in place; return truth."""
-    chosen = art.choose_bad_channels(rng, common_channels)
+def _bad_channels(data, names, spec, rng, common_channels, rng_leads=None):
+    """Choose the recording's bad channels and corrupt them in place; return truth.
+
+    One or two channels drawn at random (``cause`` "random"), then the site's broken
+    leads (``cause`` "broken-lead", :attr:`SiteSpec.broken_leads`, from ``rng_leads``);
+    a random draw that falls on a broken lead is left to the broken lead.
+    """
+    chosen = [dict(b, cause="random") for b in art.choose_bad_channels(rng, common_channels)
+              if b["standard_name"] not in spec.broken_leads]
     for bad in chosen:
         row = list(spec.channels).index(bad["standard_name"])
         data[row] = art.corrupt_channel(data[row], bad["kind"], rng, SFREQ)
         bad["channel"] = names[row]
+    for name, kind in spec.broken_leads.items():
+        row = list(spec.channels).index(name)
+        data[row] = art.corrupt_channel(data[row], kind, rng_leads, SFREQ)
+        chosen.append({"standard_name": name, "kind": kind, "cause": "broken-lead", "channel": names[row]})
     return [{"channel": b["channel"], "standard_name": b["standard_name"],
-             "kind": b["kind"]} for b in chosen]
+             "kind": b["kind"], "cause": b["cause"]} for b in chosen]
 
 
 def _start_time(subject, paradigm):
@@ -242,7 +253,8 @@ def write_recording(folder, *, site, paradigm, subject, group, seed, size="demo"
     size : {"test", "demo", "bench"}, default="demo"
         Recording length class.
     artefacts : bool, default=True
-        Add blinks, muscle, drift, bad channels, a saturation (and the low-count
+        Add blinks, muscle, drift, bad channels (at Cedar also its three broken leads,
+        see :data:`heschl.synth.sites.SITE_DIFFERENCE`), a saturation (and the low-count
         transients); line noise is always present. At Dogwood: blinks, drift and two
         bad channels.
     common_channels : sequence of str, optional
@@ -279,7 +291,8 @@ def write_recording(folder, *, site, paradigm, subject, group, seed, size="demo"
     del scalp
     bad = []
     if artefacts:
-        bad = _bad_channels(data, names, spec, _stream(seed, "bad", *keys), common)
+        bad = _bad_channels(data, names, spec, _stream(seed, "bad", *keys), common,
+                            _stream(seed, "broken-leads", *keys))
     data = _resample(data, spec.sfreq)
     saturation = (art.draw_saturation(_stream(seed, "saturation", *keys),
                                       schedule.duration) if artefacts else None)
@@ -416,7 +429,8 @@ def study_toml_text(common_channels=COMMON_CHANNELS):
     head = [f"name = {json.dumps(STUDY_NAME)}",
             'output = "derivatives/heschl"',
             'participants = "participants.tsv"',
-            f"common_channels = {_toml_list(common_channels)}", ""]
+            f"common_channels = {_toml_list(common_channels)}", "",
+            "[groups]", f"labels = {_toml_list(GROUPS)}", f"reference = {json.dumps(GROUPS[0])}", ""]
     for paradigm in PARADIGMS:
         head += ["[[analyses]]", f"paradigm = {json.dumps(paradigm)}",
                  f"feature_sets = {_toml_list(FEATURE_SETS[paradigm])}", ""]
@@ -429,6 +443,9 @@ def make_study(root, *, size="demo", seed=20261201, artefacts=True):
     Writes ``raw/<site>/sub-<id>/...`` for every site, subject and paradigm the site
     records (Dogwood: subject ``D01``, control, oddball only, at every size), then
     ``participants.tsv``, ``truth.json`` and ``study.toml`` (paths relative to it).
+    ``truth.json`` holds ``site_difference``: the planted difference between the sites
+    (:data:`heschl.synth.sites.SITE_DIFFERENCE`, with ``applied`` False when
+    ``artefacts=False``).
 
     Parameters
     ----------
@@ -462,6 +479,7 @@ def make_study(root, *, size="demo", seed=20261201, artefacts=True):
     rows = ["participant_id\tsite\tgroup"] + ["\t".join(p) for p in participants]
     (root / "participants.tsv").write_text("\n".join(rows) + "\n", encoding="utf-8")
     truth = {"seed": int(seed), "size": size, "common_channels": list(COMMON_CHANNELS),
+             "site_difference": dict(SITE_DIFFERENCE, applied=bool(artefacts)),
              "recordings": recordings}
     (root / "truth.json").write_text(json.dumps(truth, indent=1) + "\n", encoding="utf-8")
     study = root / "study.toml"

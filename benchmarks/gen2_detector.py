@@ -49,6 +49,9 @@ def detect(study_path):
     paradigm, site = analysis_of(study, recording).paradigm, study.sites[recording.site]
     raw = read_raw(recording.path)
     raw, _, harmonised = harmonise(raw, site, paradigm, study.common_channels, recording.path.name)
+    from heschl.linenoise import channel_line_amplitudes
+
+    ratios = channel_line_amplitudes(raw, site.line_frequency, data_picks(raw.info))
     remove_line_noise(raw, site.line_frequency, method=paradigm.cleaning.line_noise,
                       picks=[t for t in FILTERED if t in raw])
     filter_pass_band(raw, paradigm.cleaning.pass_band)
@@ -60,7 +63,8 @@ def detect(study_path):
         # The detection copy of heschl.clean: 1 Hz high-passed (heschl.clean._detection_copy).
         x = mne.filter.filter_data(raw.get_data(picks=picks[idx]), raw.info["sfreq"], 1.0, None, verbose="error")
         det = BadChannelDetector(kind=kind, **DETECTOR_SETTINGS.get(kind, {}))
-        det.fit(x, [names[i] for i in idx], raw.info["sfreq"], exclude=[restored] if restored else [])
+        det.fit(x, [names[i] for i in idx], raw.info["sfreq"], exclude=[restored] if restored else [],
+                line_amplitude=None if ratios is None else ratios[idx])
         flags.update(det.bads_)
     return flags, names
 

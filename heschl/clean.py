@@ -9,7 +9,7 @@ import logging
 
 import numpy as np
 
-from .errors import InputDataError, problem
+from .errors import InputDataError, UnusableRecording, problem
 from .sensors import DATA_TYPES, by_type, data_picks, show, types_of
 from .vocabulary import INTERPOLATION_ORIGIN
 
@@ -19,56 +19,93 @@ log = logging.getLogger(__name__)
 
 
 class BadChannelDetector:
-    """Flag flat, noisy and unpredictable EEG channels with robust statistics.
+    """Flag flat, noisy, unpredictable and bridged channels, each judged against the
+    recording's own channels of the same sensor type.
 
-    Flat channels are found on the data as recorded; noisy and unpredictable ones on a
-    median-referenced copy, so a bad channel cannot hide behind (or spoil) the reference.
+    Every rule compares a channel with the other channels of its recording (robust z over
+    channels, or a window's median channel), so that what is flagged does not depend on
+    the cap's density or on the share of independent sensor noise; the one absolute
+    limit is the physical floor of a flat EEG channel. Flat channels are found on the data
+    as recorded; the other rules on a median-referenced copy, so a bad channel cannot hide
+    behind (or spoil) the reference.
 
     Parameters
     ----------
     flat_ratio : float, default=0.1
         A channel whose robust amplitude is below this fraction of the median channel's
-        is flat.
+        is flat (heschl's choice).
+    flat_floor : float or None, default=None
+        Robust amplitude (SI) below which a channel is flat whatever the others do, so a
+        recording whose channels are all dead is not judged normal; None uses
+        :data:`FLAT_FLOOR` of the type (EEG 0.5 uV: band-passed scalp EEG with electrode
+        and amplifier noise stays above it, common practice; no floor for MEG).
     noisy_z : float, default=4.0
         Robust z-score (median/MAD over channels) of log robust amplitude above which a
         channel is noisy; robust z limits of 3-5 are common practice.
     noisy_ratio : float, default=2.0
         A noisy channel must also be this many times the median channel's robust
         amplitude, so that a tight spread over channels cannot flag ordinary ones.
-    min_correlation : float, default=0.6
-        Correlation, in 1 s windows, between a channel and its least-squares prediction
-        from all other channels below which a window counts as unpredictable.
+    poor_z : float, default=3.0
+        In each window, the correlation of every channel with its least-squares
+        prediction from the other channels is Fisher-transformed and compared with the
+        window's median channel (robust z over channels); a window is poor for a channel
+        below ``-poor_z`` (the predict-from-others idea of RANSAC-style detection,
+        Jas et al. 2017, judged relative to the recording as heschl's choice).
+    poor_margin : float, default=0.25
+        A poor window must also be at least this much below the window's median
+        correlation (in correlation units), so that on a dense, quiet cap a channel at
+        0.85 among channels at 0.97 is not poor (a channel far from the strongest sources
+        is predicted less well and is not broken).
     max_unpredictable : float, default=0.2
-        A channel unpredictable in more than this fraction of windows is bad (pops, loose
-        contact); the idea of predicting a channel from the others follows RANSAC-style
-        detection (Jas et al. 2017, autoreject).
+        A channel poor in more than this fraction of windows is bad (pops, loose contact).
+    pickup_z : float, default=3.0
+        With the channels' mains amplitudes (``line_amplitude`` of :meth:`fit`, measured
+        before line-noise removal), a channel whose log amplitude lies more than this many
+        robust SD above the median channel's, and at least ``pickup_ratio`` times it,
+        picks up mains the others do not: a poor or drying electrode contact (common
+        practice; limits heschl's choice). Removal of the mains frequency does not
+        mend the contact, so the channel is bad.
+    pickup_ratio : float, default=3.0
+    bridge_ratio : float, default=0.05
+        Two channels are bridged when the variance of their difference (their
+        "electrical distance", Tenke & Kayser 2001, docs/REFERENCES.md F44) is below this
+        fraction of the median over channels of each channel's distance to its nearest
+        other channel: a gel bridge makes two electrodes one.
     window : float, default=1.0
         Window length, s.
     kind : {"eeg", "mag", "grad"}, default="eeg"
-        Sensor type of the channels (one type per detector: statistics are relative to
-        the other channels of the same type); sets the unit of the reasons.
+        Sensor type of the channels (one type per detector); sets the unit of the reasons
+        and the flat floor.
 
     Attributes
     ----------
     amplitude_ : ndarray, shape (n_channels,), SI unit of the type (V, T or T/m)
         Robust amplitude (1.4826 * median absolute deviation) as recorded.
     unpredictable_ : ndarray, shape (n_channels,)
-        Fraction of windows below ``min_correlation``.
+        Fraction of poor windows.
+    statistics_ : dict
+        Channel name -> the statistics every rule read (for the QC page).
     bads_ : dict
         Channel name -> reason, for every flagged channel.
     """
 
-    def __init__(self, *, flat_ratio=0.1, noisy_z=4.0, noisy_ratio=2.0, min_correlation=0.6, max_unpredictable=0.2,
+    def __init__(self, *, flat_ratio=0.1, flat_floor=None, noisy_z=4.0, noisy_ratio=2.0, poor_z=3.0,
+                 poor_margin=0.25, max_unpredictable=0.2, pickup_z=3.0, pickup_ratio=3.0, bridge_ratio=0.05,
                  window=1.0, kind="eeg"):
         self.kind = kind
         self.flat_ratio = flat_ratio
+        self.flat_floor = flat_floor
         self.noisy_z = noisy_z
         self.noisy_ratio = noisy_ratio
-        self.min_correlation = min_correlation
+        self.poor_z = poor_z
+        self.poor_margin = poor_margin
         self.max_unpredictable = max_unpredictable
+        self.pickup_z = pickup_z
+        self.pickup_ratio = pickup_ratio
+        self.bridge_ratio = bridge_ratio
         self.window = window
 
-    def fit(self, x, ch_names, sfreq, exclude=()):
+    def fit(self, x, ch_names, sfreq, exclude=(), line_amplitude=None):
         """Learn which channels are bad.
 
         Parameters
@@ -78,16 +115,25 @@ class BadChannelDetector:
         ch_names : list of str
         sfreq : float, Hz
         exclude : sequence of str
-            Channels not judged flat (a restored recording reference is zero by design).
+            Channels not judged flat, bridged or for mains pickup (a restored recording
+            reference is zero by design).
+        line_amplitude : ndarray, shape (n_channels,), or None
+            Each channel's mains amplitude before line-noise removal, SI
+            (:func:`heschl.linenoise.channel_line_amplitudes`); None skips the pickup rule.
         """
         x = np.asarray(x, dtype=float)
         bads = {}
         self.amplitude_ = _robust_amplitude(x)
         typical = np.median(self.amplitude_)
+        floor = FLAT_FLOOR.get(self.kind, 0.0) if self.flat_floor is None else self.flat_floor
         for name, a in zip(ch_names, self.amplitude_):
-            if name not in exclude and a < self.flat_ratio * typical:
+            if name in exclude:
+                continue
+            if a < self.flat_ratio * typical:
                 bads[name] = (f"flat: robust amplitude {show(a, self.kind, 2)} < {self.flat_ratio:g} x median "
                               f"{show(typical, self.kind, 2)}")
+            elif a < floor:
+                bads[name] = f"flat: robust amplitude {show(a, self.kind, 2)} below {show(floor, self.kind, 2)}"
         y = x - np.median(x, axis=0, keepdims=True)
         amp = _robust_amplitude(y)
         live = np.array([n not in bads for n in ch_names])
@@ -103,13 +149,60 @@ class BadChannelDetector:
                 bads[name] = (f"noisy: robust amplitude {show(a, self.kind)}, {a / median:.1f} x median "
                               f"{show(median, self.kind)}, robust z {z:.1f} > {self.noisy_z:g}, and not explained "
                               f"by the other channels (robust z {zr:.1f})")
-        self.unpredictable_ = _unpredictable(y, pred, int(round(self.window * sfreq)), self.min_correlation)
+        live = np.array([n not in bads for n in ch_names])
+        r = _window_correlations(y, pred, int(round(self.window * sfreq)))
+        poor, typical_r = _poor_windows(r, live, self.poor_z, self.poor_margin)
+        self.unpredictable_ = poor.mean(axis=1)
         for name, frac in zip(ch_names, self.unpredictable_):
             if name not in bads and frac > self.max_unpredictable:
-                bads[name] = (f"unpredictable: in {frac:.0%} of 1 s windows its correlation with the other "
-                              f"channels' prediction is below {self.min_correlation:g}")
+                bads[name] = (f"unpredictable: in {frac:.0%} of {self.window:g} s windows its correlation with the "
+                              f"other channels' prediction is more than {self.poor_z:g} robust SD below the "
+                              f"window's median channel (limit {self.max_unpredictable:.0%})")
+        if line_amplitude is not None:
+            mains = np.asarray(line_amplitude, dtype=float)
+            judged = live & np.isfinite(mains) & np.array([n not in exclude for n in ch_names])
+            if judged.sum() > 2 and np.median(mains[judged]) > 0:
+                z_line, typical_mains = _robust_z(np.where(np.isfinite(mains), mains, 0.0), judged)
+                for i, name in enumerate(ch_names):
+                    if (judged[i] and name not in bads and z_line[i] > self.pickup_z
+                            and mains[i] > self.pickup_ratio * typical_mains):
+                        bads[name] = (f"mains pickup: {show(mains[i], self.kind)} at the line frequency, "
+                                      f"{mains[i] / typical_mains:.1f} x the median channel's "
+                                      f"{show(typical_mains, self.kind)} (robust z {z_line[i]:.1f} > "
+                                      f"{self.pickup_z:g}): poor electrode contact")
+        distance = _nearest_distance(y)
+        usable = [i for i, n in enumerate(ch_names) if n not in bads and n not in exclude]
+        reference = np.median(distance[usable, 1]) if len(usable) > 2 else np.nan
+        for i, name in enumerate(ch_names):
+            j = int(distance[i, 0])
+            if (name in bads or name in exclude or ch_names[j] in exclude or not np.isfinite(reference)
+                    or distance[i, 1] >= self.bridge_ratio * reference):
+                continue
+            bads[name] = (f"bridged with {ch_names[j]}: the variance of their difference is "
+                          f"{distance[i, 1] / reference:.3f} x the typical nearest-channel distance "
+                          f"(limit {self.bridge_ratio:g})")
+        self.statistics_ = {
+            name: {"amplitude": float(self.amplitude_[i]), "amplitude_z": float(z_amp[i]),
+                   "unexplained_z": float(z_res[i]), "poor_fraction": float(self.unpredictable_[i]),
+                   "median_correlation": float(np.median(r[i])), "window_median_correlation": float(typical_r),
+                   "nearest": ch_names[int(distance[i, 0])],
+                   "nearest_distance_ratio": float(distance[i, 1] / reference) if np.isfinite(reference) else None,
+                   "line_amplitude": (float(line_amplitude[i]) if line_amplitude is not None
+                                      and np.isfinite(line_amplitude[i]) else None)}
+            for i, name in enumerate(ch_names)}
         self.bads_ = bads
         return self
+
+
+    def limits(self):
+        """The rules' limits by name, as set (for the record and the page)."""
+        return {"flat_ratio": self.flat_ratio, "noisy_z": self.noisy_z, "noisy_ratio": self.noisy_ratio,
+                "poor_z": self.poor_z, "max_unpredictable": self.max_unpredictable, "pickup_z": self.pickup_z,
+                "pickup_ratio": self.pickup_ratio, "bridge_ratio": self.bridge_ratio, "window_s": self.window}
+
+
+#: Robust amplitude (SI) below which a channel of the type is flat whatever the others do.
+FLAT_FLOOR = {"eeg": 0.5e-6}
 
 
 def _robust_amplitude(x):
@@ -141,8 +234,8 @@ def _predict(y, live):
     return pred
 
 
-def _unpredictable(y, pred, width, min_correlation):
-    """Fraction of windows where each channel correlates poorly with its prediction."""
+def _window_correlations(y, pred, width):
+    """Correlation of each channel with its prediction in consecutive windows, shape (n_channels, n_windows)."""
     n_ch, n_times = y.shape
     n_win = max(1, n_times // width)
     xs = y[:, :n_win * width].reshape(n_ch, n_win, -1)
@@ -150,17 +243,38 @@ def _unpredictable(y, pred, width, min_correlation):
     xs = xs - xs.mean(axis=-1, keepdims=True)
     ps = ps - ps.mean(axis=-1, keepdims=True)
     denom = np.sqrt((xs ** 2).sum(-1) * (ps ** 2).sum(-1))
-    r = np.where(denom > 0, (xs * ps).sum(-1) / np.where(denom > 0, denom, 1.0), 0.0)
-    return (r < min_correlation).mean(axis=1)
+    return np.where(denom > 0, (xs * ps).sum(-1) / np.where(denom > 0, denom, 1.0), 0.0)
 
 
-#: Detector settings that differ by sensor type. Planar gradiometers see narrower lead
-#: fields than electrodes or magnetometers, so even a good one is predicted less well from
-#: the others, worst at the helmet's lower rim: on the synthetic Dogwood recording clean
-#: rim gradiometers failed in 22-27 % of the windows at 0.5 (more at 0.6) while the noisy
-#: one failed in 88 %. Gradiometers are judged at correlation 0.5 and flagged above 40 %
-#: of windows (heschl's choice, measured on synthetic data; revisit on real helmets).
-DETECTOR_SETTINGS = {"grad": {"min_correlation": 0.5, "max_unpredictable": 0.4}}
+def _poor_windows(r, live, poor_z, margin):
+    """Windows where a channel's correlation lies far below the window's median live channel.
+
+    Returns the boolean (n_channels, n_windows) array and the median correlation of the
+    median channel over windows.
+    """
+    f = np.arctanh(np.clip(r, -0.999, 0.999))
+    centre = np.median(f[live], axis=0)
+    spread = 1.4826 * np.median(np.abs(f[live] - centre), axis=0)
+    spread = np.maximum(spread, 1e-6)
+    typical = np.median(r[live], axis=0)
+    poor = ((f - centre) / spread < -poor_z) & (r < typical - margin)
+    return poor, float(np.median(typical))
+
+
+def _nearest_distance(y):
+    """Each channel's nearest other channel by the variance of their difference (electrical
+    distance), as (n_channels, 2): index of the nearest and its distance."""
+    cov = np.cov(y)
+    var = np.diag(cov)
+    distance = var[:, None] + var[None, :] - 2 * cov
+    np.fill_diagonal(distance, np.inf)
+    nearest = np.argmin(distance, axis=1)
+    return np.column_stack([nearest, distance[np.arange(len(var)), nearest]])
+
+
+#: Detector settings that differ by sensor type (none since the rules judge each channel
+#: against the recording's own channels of its type).
+DETECTOR_SETTINGS = {}
 
 #: Channel types the cleaning filters touch: the data types and EOG (a reference for blinks).
 FILTERED = DATA_TYPES + ("eog",)
@@ -281,13 +395,17 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
     from .linenoise import remove_line_noise
     from .ocular import OcularCorrection
 
+    from .linenoise import channel_line_amplitudes
+
     record = {}
+    picks = data_picks(raw.info)
+    # Before removal: a channel picking up mains the others do not has a poor contact.
+    mains = channel_line_amplitudes(raw, line_frequency, picks) if line_frequency else None
     if line_frequency:
         # Before the pass band, so that harmonics inside the recording's band are found.
         record["line_noise"] = remove_line_noise(raw, line_frequency, method=paradigm.cleaning.line_noise,
                                                  picks=[t for t in FILTERED if t in raw])
     record["filter"] = filter_pass_band(raw, paradigm.cleaning.pass_band)
-    picks = data_picks(raw.info)
     names = [raw.ch_names[i] for i in picks]
     groups = by_type(types_of(raw.info, picks))
     bads = {c: "marked bad in the study file" for c in forced_bads if c in names}
@@ -295,17 +413,24 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
         # One detector per sensor type: robust statistics compare a channel with its own kind.
         for kind, idx in groups.items():
             sub = [names[i] for i in idx]
-            detector = BadChannelDetector(kind=kind, **DETECTOR_SETTINGS.get(kind, {})).fit(_detection_copy(raw, picks[idx]), sub, raw.info["sfreq"],
-                                                         exclude=[restored] if restored else [])
+            detector = BadChannelDetector(kind=kind, **DETECTOR_SETTINGS.get(kind, {})).fit(
+                _detection_copy(raw, picks[idx]), sub, raw.info["sfreq"], exclude=[restored] if restored else [],
+                line_amplitude=None if mains is None else mains[idx])
             bads.update({c: r for c, r in detector.bads_.items() if c not in bads})
+            record.setdefault("detector_limits", {})[kind] = detector.limits()
+            record.setdefault("detector", {})[kind] = {
+                c: {k: (float(f"{v:.4g}") if isinstance(v, float) else v) for k, v in stats.items()}
+                for c, stats in detector.statistics_.items()}
     record["bad_channels"] = bads
     for kind, idx in groups.items():
         sub = [names[i] for i in idx]
         found = [c for c in sub if c in bads]
         if len(found) > len(sub) // 4:
-            raise InputDataError(problem(where, f"{len(found)} of {len(sub)} {kind.upper()} channels are bad "
-                                         f"({', '.join(sorted(found)[:6])})",
-                                         "check the recording; more than a quarter cannot be interpolated"))
+            raise UnusableRecording(problem(where, f"{len(found)} of {len(sub)} {kind.upper()} channels are bad "
+                                            f"({', '.join(sorted(found)[:6])}{', ...' if len(found) > 6 else ''})",
+                                            "check the recording; more than a quarter cannot be interpolated "
+                                            "(its page shows each channel's statistics)"),
+                                    stage="clean", record=record)
     if bads:
         raw.info["bads"] = sorted(bads)
         raw.interpolate_bads(reset_bads=True, mode="accurate", origin=INTERPOLATION_ORIGIN, verbose="error")

@@ -12,6 +12,7 @@ __all__ = [
     "DefinitionError",
     "InputDataError",
     "ProcessingError",
+    "UnusableRecording",
     "problem",
     "did_you_mean",
 ]
@@ -27,6 +28,20 @@ class DefinitionError(HeschlError, ValueError):
 
 class InputDataError(HeschlError, ValueError):
     """A recording cannot be read or does not match its definitions."""
+
+
+class UnusableRecording(InputDataError):
+    """A recording was read but cannot give features (too many bad channels, ...).
+
+    ``stage`` names the step that found it; ``record`` holds what that step had decided
+    so far (e.g. the bad-channel detector's statistics), so the recording's page can show
+    the evidence that led to the verdict.
+    """
+
+    def __init__(self, message, stage=None, record=None):
+        super().__init__(message)
+        self.stage = stage
+        self.record = record or {}
 
 
 class ProcessingError(HeschlError, RuntimeError):

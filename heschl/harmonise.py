@@ -275,7 +275,14 @@ def _restore_reference(raw, site):
     name = reference_channel(site)
     if name is None or name in raw.ch_names:
         return None
-    mne.add_reference_channels(raw, name, copy=False)
+    import warnings
+
+    with warnings.catch_warnings():
+        # A file with positions gets a reference channel without one; the montage set
+        # right after this (_set_montage) gives it its position, so mne's note is moot.
+        warnings.filterwarnings("ignore", message="Location for this channel is unknown",
+                                category=RuntimeWarning)
+        mne.add_reference_channels(raw, name, copy=False)
     return name
 
 

@@ -13,7 +13,7 @@ import scipy.signal
 from .errors import DefinitionError, InputDataError, did_you_mean, problem
 from .vocabulary import LINE_NOISE_METHODS
 
-__all__ = ["METHODS", "line_noise_ratio", "line_harmonics", "remove_line_noise"]
+__all__ = ["METHODS", "line_noise_ratio", "line_harmonics", "remove_line_noise", "channel_line_amplitudes"]
 
 log = logging.getLogger(__name__)
 
@@ -171,6 +171,27 @@ def remove_line_noise(raw, frequency, *, method="notch", picks="eeg"):
     log.info("Line noise (%s at %s Hz): ratio %s -> %s", method, ", ".join(f"{f:g}" for f in freqs) or "-",
              _fmt(record["ratio_before"]), _fmt(record["ratio_after"]))
     return record
+
+
+def channel_line_amplitudes(raw, frequency, picks, bandwidth=1.0):
+    """Mains amplitude of each picked channel at ``frequency``: the root of the Welch power
+    in a ``bandwidth`` band around it above the mean density of its neighbouring bands
+    (V rms, 0 when nothing stands out), or None when the neighbouring bands do not fit
+    below Nyquist. Unlike the ratio it does not grow where a channel's background is
+    small, so channels compare by the mains they pick up."""
+    sfreq = float(raw.info["sfreq"])
+    if not 0 < frequency - _NEIGHBOURS[1] < frequency + _NEIGHBOURS[1] < sfreq / 2:
+        return None
+    x = raw.get_data(picks=picks)
+    nperseg = _segment_samples(x.shape[-1], sfreq, "channel_line_amplitudes")
+    freqs, psd = scipy.signal.welch(x, fs=sfreq, window="hann", nperseg=nperseg, noverlap=nperseg // 2,
+                                    detrend="constant", scaling="density", axis=-1)
+    step = freqs[1] - freqs[0]
+    distance = np.abs(freqs - frequency)
+    band = distance <= bandwidth / 2 + 1e-9 * sfreq
+    ring = (distance >= _NEIGHBOURS[0]) & (distance <= _NEIGHBOURS[1])
+    excess = (psd[:, band] - psd[:, ring].mean(axis=-1, keepdims=True)).sum(axis=-1) * step
+    return np.sqrt(np.maximum(excess, 0.0))
 
 
 def _median_ratio(raw, frequency, picks):

@@ -13,6 +13,7 @@ import os
 import time
 
 from . import __version__
+from .errors import InputDataError
 from .inputs import PIPELINE_REVISION, analysis_of, definitions_of, display_path, input_hashes, input_key
 
 __all__ = ["process_recording", "package_versions", "PIPELINE_REVISION"]
@@ -67,22 +68,32 @@ def _process(study, recording, hashes):
     hashes = input_hashes(recording) if hashes is None else hashes
     definitions = definitions_of(study, recording)
     key = input_key(hashes, definitions)
-    raw = read_raw(recording.path)
+    raw = read_raw(recording.path)  # an unreadable file ends here, without a page
     clock.lap("read")
-    raw, markers, harmonised = harmonise(raw, site, paradigm, study.common_channels, where)
-    analysis, skipped_sets = applicable(analysis, harmonised["channels"], where,
-                                        set(harmonised["channel_types"].values()))
-    clock.lap("harmonise")
-    # Spectra of the harmonised data before clean() changes raw in place: Welch averages
-    # only, read a few channels at a time, so no second copy of the recording is kept.
-    fmax = spectrum_limit(raw.info["sfreq"], site.line_frequency)
-    spectra_before = channel_spectra(raw, fmax)
-    watch = OcularWatch()
-    cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
-                     restored=harmonised["restored_reference"], line_frequency=site.line_frequency, watch=watch)
-    spectra_after = channel_spectra(raw, fmax)
-    clock.lap("clean")
-    trials, times, entries, ch_names, rejection, counts = _segment_and_reject(raw, markers, paradigm, cleaning)
+    # What the stages found so far, for the page of a recording that turns out unusable.
+    found = {"stage": "harmonise", "raw": raw, "harmonised": None, "cleaning": None, "spectra_before": None,
+             "fmax": spectrum_limit(raw.info["sfreq"], site.line_frequency)}
+    try:
+        raw, markers, harmonised = harmonise(raw, site, paradigm, study.common_channels, where)
+        found.update(raw=raw, harmonised=harmonised, stage="channels")
+        analysis, skipped_sets = applicable(analysis, harmonised["channels"], where,
+                                            set(harmonised["channel_types"].values()))
+        clock.lap("harmonise")
+        # Spectra of the harmonised data before clean() changes raw in place: Welch averages
+        # only, read a few channels at a time, so no second copy of the recording is kept.
+        fmax = spectrum_limit(raw.info["sfreq"], site.line_frequency)
+        spectra_before = channel_spectra(raw, fmax)
+        found.update(spectra_before=spectra_before, stage="clean")
+        watch = OcularWatch()
+        cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
+                         restored=harmonised["restored_reference"], line_frequency=site.line_frequency, watch=watch)
+        found.update(cleaning=cleaning, stage="segment and reject")
+        spectra_after = channel_spectra(raw, fmax)
+        clock.lap("clean")
+        trials, times, entries, ch_names, rejection, counts = _segment_and_reject(raw, markers, paradigm, cleaning)
+    except InputDataError as exc:
+        clock.lap(found["stage"])
+        return _unusable(study, recording, analysis, site, found, exc, hashes, definitions, key, clock)
     cell_labels = rejection.pop("cell_labels", None)  # for the page's decision image, not provenance
     clock.lap("segment and reject")
     source = Source(trials, times, ch_names, raw.info["sfreq"], paradigm,
@@ -100,7 +111,14 @@ def _process(study, recording, hashes):
         "spectra": (spectra_before[0], spectra_before[1], spectra_after[1]), "line_frequency": site.line_frequency})
     clock.lap("evidence")
     log.info("Verdict %s (%d flag%s)", qc["verdict"], len(qc["flags"]), "" if len(qc["flags"]) == 1 else "s")
-    provenance = {
+    provenance = _provenance(study, recording, hashes, key, definitions, clock, {
+        "harmonise": harmonised, "clean": cleaning, "rejection": dict(rejection, trials=counts),
+        "trial_log": entries})
+    return {"rows": rows, "qc": qc, "provenance": provenance, "evidence": evidence, "arrays": arrays}
+
+
+def _provenance(study, recording, hashes, key, definitions, clock, steps):
+    return {
         "recording": {"site": recording.site, "participant_id": recording.participant_id,
                       "group": recording.group, "paradigm": recording.paradigm,
                       # relative to the study file, so outputs do not depend on the working folder
@@ -109,13 +127,32 @@ def _process(study, recording, hashes):
         "inputs_sha256": hashes,
         "key": key,
         "definitions": definitions,
-        "steps": {"harmonise": harmonised, "clean": cleaning,
-                  "rejection": dict(rejection, trials=counts),
-                  "trial_log": entries},
+        "steps": steps,
         "versions": package_versions(),
         "timings_s": clock.times,
     }
-    return {"rows": rows, "qc": qc, "provenance": provenance, "evidence": evidence, "arrays": arrays}
+
+
+def _unusable(study, recording, analysis, site, found, exc, hashes, definitions, key, clock):
+    """The result of a recording that was read but cannot give features: no rows and no
+    arrays, the verdict "unusable" with the reason, and the evidence gathered until then
+    (spectra, sensor map, the bad-channel detector's statistics) for its page."""
+    from .qc import unusable_record
+    from .qc.evidence import channel_spectra, unusable_evidence
+
+    cleaning = found["cleaning"] or getattr(exc, "record", None) or {}
+    raw = found["raw"]
+    spectra = found["spectra_before"]
+    if spectra is None:
+        spectra = channel_spectra(raw, found["fmax"])  # the data as read: harmonising stopped
+    stage = getattr(exc, "stage", None) or found["stage"]
+    qc = unusable_record(recording, analysis, raw, found["harmonised"], cleaning, stage, str(exc))
+    evidence = unusable_evidence(analysis, raw.info, cleaning, spectra, site.line_frequency, stage)
+    clock.lap("evidence")
+    log.warning("Verdict unusable at %s: %s", stage, exc)
+    provenance = _provenance(study, recording, hashes, key, definitions, clock, {
+        "harmonise": found["harmonised"], "clean": cleaning, "stopped": {"stage": stage, "reason": str(exc)}})
+    return {"rows": [], "qc": qc, "provenance": provenance, "evidence": evidence, "arrays": {}}
 
 
 def _segment_and_reject(raw, markers, paradigm, cleaning):

@@ -148,7 +148,6 @@ def signoff_for(study, recording, row, current_key):
     ``row`` is its decisions.tsv row or None; ``current_key`` its input key now.
     """
     state = "none" if row is None else ("current" if row["input_key"] == current_key else "stale")
-    from .inputs import display_path
 
     suggested = "exclude" if row is None else row["decision"]
     command = " ".join(["heschl", "decide", shlex.quote(Path(study.source).name),

@@ -53,9 +53,14 @@ def figure_spectra(spectra, sensors, kind):
     """Every channel's spectrum before and after cleaning, one sensor type; bad channels highlighted."""
     block = spectra["types"][kind]
     freqs = spectra["freqs"]
+    sensors = sensors or {"channels": [], "state": []}
     bad = {c for c, s in zip(sensors["channels"], sensors["state"]) if s != "good"}
-    fig, axes = figure(9.6, 3.0, ncols=2, sharey=True)
-    for ax, key, label in zip(axes[0], ("before", "after"), ("before cleaning", "after cleaning")):
+    cleaned = bool(_finite([v for row in block["after"] for v in row]))
+    panels = (("before", "before cleaning"), ("after", "after cleaning")) if cleaned else \
+        (("before", "as the recording stopped (not cleaned)"),)
+    fig, axes = figure(9.6 if cleaned else 6.0, 3.0, ncols=len(panels), sharey=True)
+    axes = axes if cleaned else [[axes]]
+    for ax, (key, label) in zip(axes[0], panels):
         lo, hi = spectra["pass_band"]
         ax.axvspan(lo, min(hi, freqs[-1]), color=PALETTE["window"], alpha=0.45, lw=0, label="pass band")
         for name, psd in zip(block["channels"], block[key]):
@@ -66,15 +71,19 @@ def figure_spectra(spectra, sensors, kind):
         ax.set_title(label, fontsize=9)
         ax.set_xlabel("frequency (Hz)")
         ax.set_xlim(0, freqs[-1])
-    floor = _finite([v for row in block["before"] for v in row])
+    floor = [v for v in _finite([v for row in block["before"] for v in row]) if v > 0]
     if floor:
         # The stop band of the after panel may fall by many decades: show it down to a
-        # hundredth of the lowest value before cleaning, so the pass band stays readable.
-        axes[0][0].set_ylim(bottom=0.01 * max(min(floor), 1e-30))
+        # hundredth of the low end (1st percentile) before cleaning, so the pass band stays
+        # readable; a restored reference channel of zeros is not a floor.
+        import numpy as np
+
+        axes[0][0].set_ylim(bottom=0.01 * float(np.percentile(floor, 1)))
     axes[0][0].set_ylabel(f"PSD ({block['unit']})")
     axes[0][0].plot([], [], color=PALETTE["first"], lw=0.8, label="channel")
     if bad & set(block["channels"]):
-        axes[0][0].plot([], [], color=PALETTE["second"], lw=1.1, label="bad channel (interpolated in cleaning)")
+        axes[0][0].plot([], [], color=PALETTE["second"], lw=1.1,
+                        label="bad channel (interpolated in cleaning)" if cleaned else "bad channel")
     if spectra.get("line_harmonics"):
         axes[0][0].plot([], [], color=PALETTE["contrast"], lw=0.8, ls=":", label="line frequency, harmonics")
     _legend(axes[0][0], loc="lower left")
@@ -82,7 +91,7 @@ def figure_spectra(spectra, sensors, kind):
 
 
 def _spectra_section(evidence, provenance):
-    spectra, sensors = evidence["spectra"], evidence["sensors"]
+    spectra, sensors = evidence["spectra"], evidence.get("sensors")
     line = spectra.get("line_frequency")
     method = spectra.get("line_method") or "none"
     figures = []
@@ -90,10 +99,65 @@ def _spectra_section(evidence, provenance):
         caption = (f"Thin lines: each {_TYPE_NAMES.get(kind, kind)} channel (Welch, 2 s segments, 0.5 Hz bins). "
                    f"Look for the line peak{f' at {line:g} Hz' if line else ''} before cleaning and its removal "
                    f"after ({method}), channels standing apart from the bundle, and a smooth fall outside the "
-                   "shaded pass band.")
+                   "shaded pass band.") if not evidence.get("unusable") else (
+                   f"Thin lines: each {_TYPE_NAMES.get(kind, kind)} channel (Welch, 2 s segments, 0.5 Hz bins), "
+                   "as harmonised (or as read where harmonising stopped); cleaning did not finish. Look for "
+                   "channels standing apart from the bundle (flat ones far below, noisy ones above) and for "
+                   f"the line peak{f' at {line:g} Hz' if line else ''}.")
         figures.append(_figure(f"spectra-{kind}", f"Spectra of every channel, {_TYPE_NAMES.get(kind, kind)}",
                                figure_spectra(spectra, sensors, kind), caption))
     return _section("spectra", "Spectra before and after cleaning", figures)
+
+
+# -- the bad-channel detector, for a recording that stopped ------------------------------------
+
+#: The detector's statistics the page draws: key, axis label, log scale, limit (from the
+#: recorded limits: name and whether it is a lower or an upper limit).
+_DETECTOR_PANELS = (
+    ("amplitude", "robust amplitude ({unit})", True, None),
+    ("amplitude_z", "amplitude, robust z over channels", False, ("noisy_z", "upper")),
+    ("poor_fraction", "fraction of poor windows", False, ("max_unpredictable", "upper")),
+    ("nearest_distance_ratio", "electrical distance to nearest / typical", True, ("bridge_ratio", "lower")),
+)
+
+
+def figure_detector(block):
+    """Each channel's detector statistics, one sensor type, bad channels highlighted, limits drawn."""
+    names = list(block["channels"])
+    bad = set(block["bad"])
+    fig, axes = figure(9.6, 5.0, nrows=2, ncols=2)
+    x = list(range(len(names)))
+    for ax, (key, label, log_scale, limit) in zip([a for row in axes for a in row], _DETECTOR_PANELS):
+        factor = block["factor"] if key == "amplitude" else 1.0
+        values = [block["channels"][c].get(key) for c in names]
+        shown = [float("nan") if v is None else v * factor for v in values]
+        colours_ = [PALETTE["second"] if c in bad else PALETTE["first"] for c in names]
+        ax.scatter(x, shown, s=12, c=colours_, zorder=3)
+        if limit and limit[0] in block["limits"]:
+            ax.axhline(block["limits"][limit[0]], color=PALETTE["rejected"], lw=1.0, ls="--",
+                       label=f"limit {limit[0]} = {block['limits'][limit[0]]:g} ({limit[1]})")
+            _legend(ax, loc="best")
+        if log_scale and _finite(shown) and min(_finite(shown)) > 0:
+            ax.set_yscale("log")
+        ax.set_ylabel(label.format(unit=block["unit"]), fontsize=8)
+        step = max(1, len(names) // 32)
+        ax.set_xticks(x[::step], names[::step], rotation=90, fontsize=6)
+    axes[1][0].set_xlabel("channel")
+    axes[1][1].set_xlabel("channel")
+    return fig
+
+
+def _detector_section(evidence):
+    detector = evidence.get("detector") or {}
+    figures = [_figure(f"detector-{kind}", f"Bad-channel statistics, {_TYPE_NAMES.get(kind, kind)}",
+                       figure_detector(block),
+                       f"Orange: the {len(block['bad'])} of {len(block['channels'])} channels found bad. Each "
+                       "statistic compares a channel with the recording's own channels; dashed lines are the "
+                       "limits. Look for whether the bad channels are a few outliers or most of the cap "
+                       "(a loose reference or ground makes every channel bad).")
+               for kind, block in detector.items()]
+    return _section("detector", "Why channels were found bad", figures,
+                    None if figures else "Cleaning did not get to the bad-channel detector.")
 
 
 # -- sensor maps -----------------------------------------------------------------------------
@@ -513,6 +577,19 @@ def _rows(rows):
     return out
 
 
+def _detector_rows(detector):
+    """The detector's statistics as table rows, bad channels first (None without a detector record)."""
+    if not detector:
+        return None
+    rows = []
+    for kind, block in detector.items():
+        for name, stats in block["channels"].items():
+            rows.append(dict(stats, channel=name, kind=kind, unit=block["unit"],
+                             amplitude_shown=None if stats.get("amplitude") is None else stats["amplitude"] * block["factor"],
+                             reason=block["bad"].get(name)))
+    return sorted(rows, key=lambda r: (r["reason"] is None, r["kind"], r["channel"]))
+
+
 def render_recording(recording, qc, rows, provenance, evidence, signoff=None):
     """The QC page of one recording, as HTML text.
 
@@ -531,11 +608,18 @@ def render_recording(recording, qc, rows, provenance, evidence, signoff=None):
 
     matplotlib.use("Agg", force=False)
     design = evidence["design"]
-    sections = [_spectra_section(evidence, provenance), _sensor_section(evidence),
-                _rejection_section(evidence, qc, provenance), _ocular_section(evidence),
-                _DESIGN_SECTIONS[design](evidence)]
+    if evidence.get("unusable"):
+        # Stopped before features: the evidence that led there, nothing drawn that was not recorded.
+        sections = [_spectra_section(evidence, provenance)]
+        sections += [_sensor_section(evidence)] if evidence.get("sensors") else []
+        sections += [_detector_section(evidence)]
+    else:
+        sections = [_spectra_section(evidence, provenance), _sensor_section(evidence),
+                    _rejection_section(evidence, qc, provenance), _ocular_section(evidence),
+                    _DESIGN_SECTIONS[design](evidence)]
     log.debug("Page of %s: verdict %s, %d flag(s)", recording.stem, qc["verdict"], len(qc["flags"]))
     return environment().get_template("recording.html.j2").render(
         css=css(), caution=CAUTION, version=__version__, recording=recording, qc=qc, rows=_rows(rows),
         sections=sections, provenance=provenance, signoff=signoff, signoff_meta=SIGNOFF_META,
+        detector=_detector_rows(evidence.get("detector")),
         fingerprint=signoff_fingerprint(signoff))

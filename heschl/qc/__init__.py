@@ -12,7 +12,7 @@ from .flags import FLAG_LEVELS, verdict
 from .metrics import (channel_record, kept_blinks, marker_counts, mastoid_inversion, ocular_record, snr,
                       trial_counts, vertical_eog)
 
-__all__ = ["quality_record", "evidence", "recording_evidence", "verdict", "FLAG_LEVELS", "trial_counts", "kept_blinks",
+__all__ = ["quality_record", "unusable_record", "evidence", "recording_evidence", "verdict", "FLAG_LEVELS", "trial_counts", "kept_blinks",
            "vertical_eog"]
 
 
@@ -66,4 +66,55 @@ def quality_record(recording, analysis, source, steps, rows, skipped_sets):
         "ocular": ocular,
         "line_noise": cleaning.get("line_noise"),
         "feature_sets": {"used": [fs.name for fs in analysis.feature_sets], "not_applicable": skipped_sets},
+    }
+
+
+#: Words for the stage at which an unusable recording stopped, for its flag.
+STOPPED_AT = {"harmonise": "harmonising", "channels": "matching the feature sets' channels",
+              "clean": "cleaning", "segment and reject": "segmenting and rejection"}
+
+
+def unusable_record(recording, analysis, raw, harmonised, cleaning, stage, reason):
+    """The QC record of a recording that was read but cannot give features.
+
+    The verdict is "unusable" with the reason as its flag; the channel record is kept
+    where harmonising got that far (what was found bad and why), so the page and
+    ``group/qc.tsv`` show the same evidence as for any recording.
+
+    Parameters
+    ----------
+    recording : heschl.inputs.Recording
+    analysis : heschl.config.Analysis
+    raw : mne.io.BaseRaw
+        The data as far as the stages got.
+    harmonised : dict or None
+        The harmonising record; None when harmonising itself stopped.
+    cleaning : dict
+        What cleaning decided until it stopped (may be empty).
+    stage : str
+        Key of :data:`STOPPED_AT`.
+    reason : str
+        The one-line error.
+    """
+    found = [_flags.flag("unusable", "cannot-use", f"stopped while {STOPPED_AT.get(stage, stage)}: {reason}")]
+    channels = None
+    if harmonised is not None and "bad_channels" in cleaning:
+        channels = channel_record(harmonised, dict(cleaning, interpolated=[]))
+        channels["found_bad"] = channels.pop("bad")
+        channels["bad_fraction"], channels["interpolated_fraction"] = channels["interpolated_fraction"], None
+    sfreq = float(raw.info["sfreq"])
+    return {
+        "participant_id": recording.participant_id, "site": recording.site, "group": recording.group,
+        "paradigm": recording.paradigm,
+        "verdict": verdict(found),
+        "flags": found,
+        "unusable": {"stage": stage, "reason": reason},
+        "thresholds": analysis.paradigm.quality,
+        "channels": channels,
+        "datatype": (harmonised or {}).get("datatype", recording.datatype),
+        "sampling_rate_hz": {"file": (harmonised or {}).get("file_sampling_rate", sfreq),
+                             "analysis": (harmonised or {}).get("sampling_rate")},
+        "duration_s": (harmonised or {}).get("duration_s", raw.n_times / sfreq),
+        "line_noise": cleaning.get("line_noise"),
+        "feature_sets": {"used": [], "not_applicable": {}},
     }

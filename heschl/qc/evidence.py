@@ -553,3 +553,39 @@ def recording_evidence(analysis, source, info, steps):
     else:
         out["resting"] = resting(analysis, source)
     return out
+
+
+def unusable_evidence(analysis, info, cleaning, spectra, line_frequency, stage):
+    """What the page of an unusable recording draws: the spectra as far as the stages got
+    (harmonised, before cleaning; or as read when harmonising stopped), the sensor map
+    where the channels have positions, and the bad-channel detector's statistics per
+    channel where cleaning got to them.
+
+    Parameters
+    ----------
+    analysis : heschl.config.Analysis
+    info : mne.Info
+    cleaning : dict
+        What cleaning decided until it stopped (may be empty).
+    spectra : tuple
+        ``(freqs, before)`` or ``(freqs, before, after)`` from :func:`channel_spectra`.
+    line_frequency : float or None, Hz
+    stage : str
+        Where the recording stopped.
+    """
+    freqs, before = spectra[0], spectra[1]
+    names = [c for block in before.values() for c in block["channels"]]
+    out = {"design": analysis.paradigm.design, "unusable": {"stage": stage},
+           "spectra": _spectra_record(freqs, before, {}, cleaning, analysis.paradigm.cleaning.pass_band,
+                                      line_frequency),
+           "sensors": None, "detector": None}
+    located = [c for c in names if np.any(info["chs"][info["ch_names"].index(c)]["loc"][:3])]
+    if names and len(located) == len(names):
+        out["sensors"] = sensor_map(info, names, dict(cleaning, interpolated=[]))
+    if cleaning.get("detector"):
+        out["detector"] = {kind: {"unit": _display(kind)[0], "factor": _display(kind)[1],
+                                  "limits": (cleaning.get("detector_limits") or {}).get(kind, {}),
+                                  "channels": stats, "bad": {c: cleaning["bad_channels"][c] for c in stats
+                                                             if c in cleaning.get("bad_channels", {})}}
+                           for kind, stats in cleaning["detector"].items()}
+    return out

@@ -12,6 +12,8 @@ import pytest
 from scipy import sparse
 
 from heschl.adaptive import (
+    TUKEY_K,
+    outlier_floor,
     CONSENSUS_CANDIDATES,
     _decisions,
     adaptive_reject,
@@ -312,8 +314,10 @@ def test_record_holds_the_learnt_parameters(scenario):
         "thresholds_uv", "n_interpolate", "consensus", "n_interpolate_candidates",
         "consensus_candidates", "cv_folds", "max_cluster", "adjacency", "n_epochs", "n_kept",
         "n_dropped", "n_dropped_consensus", "n_dropped_cluster", "n_epochs_interpolated",
-        "interpolations_per_channel", "cluster_counts", "interpolated"}
+        "interpolations_per_channel", "cluster_counts", "interpolated", "threshold_floor", "thresholds_raised"}
     assert list(record["thresholds_uv"]) == NAMES
+    # A raised threshold was below its floor before and is at or above it now.
+    assert all(record["thresholds_uv"][n] > v for n, v in record["thresholds_raised"].items())
     assert all(v > 0 for v in record["thresholds_uv"].values())
     assert list(record["n_interpolate"]) == ["eeg"] and list(record["consensus"]) == ["eeg"]
     assert record["n_interpolate"]["eeg"] in interpolation_candidates(32)
@@ -353,3 +357,34 @@ def test_inputs_are_not_mutated(scenario):
     analysis, detection = scenario["inputs"]
     np.testing.assert_array_equal(scenario["analysis"], analysis)
     np.testing.assert_array_equal(scenario["detection"], detection)
+
+
+def test_outlier_floor_is_the_upper_tukey_fence():
+    # Source: Tukey 1977 (docs/REFERENCES.md F45): upper inner fence Q3 + 1.5 IQR; for
+    # normal data the share beyond it is 1 - Phi(q3 + 1.5 (q3 - q1)) with q3 = -q1 =
+    # Phi^-1(0.75), about 0.35 % (computed with scipy, not remembered).
+    from scipy import stats
+
+    rng = np.random.default_rng(4)
+    x = rng.normal(size=(200_000, 3)) * [1.0, 2.0, 5.0] + [0.0, 1.0, -3.0]
+    q1, q3 = np.percentile(x, [25, 75], axis=0)
+    np.testing.assert_allclose(outlier_floor(x), q3 + TUKEY_K * (q3 - q1))
+    z = stats.norm.ppf(0.75)
+    share = stats.norm.sf(z + 1.5 * 2 * z)
+    assert share == pytest.approx(0.0035, abs=0.0001)
+    np.testing.assert_allclose((x > outlier_floor(x)).mean(axis=0), share, atol=0.0006)
+
+
+def test_no_threshold_is_learnt_below_the_fence_on_gaussian_background():
+    # Epochs of Gaussian background only (no artefact anywhere): every epoch is ordinary
+    # for its channel, so almost none may be marked beyond its limit. Before the floor,
+    # autoreject's flat cross-validation score left limits near the median peak-to-peak
+    # on such data of an independent generator and dropped 99 % of the epochs.
+    rng = np.random.default_rng(5)
+    info = make_info()
+    n_epochs, n_times = 300, 76
+    data = rng.normal(scale=5e-6, size=(n_epochs, len(NAMES), n_times))
+    cleaned, keep, reasons, record = adaptive_reject(data, data, info, random_state=0)
+    floors = outlier_floor(np.ptp(data, axis=2)) * 1e6
+    assert all(record["thresholds_uv"][n] >= f * (1 - 1e-9) for n, f in zip(NAMES, floors))
+    assert keep.mean() > 0.9

@@ -405,6 +405,13 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
         # Before the pass band, so that harmonics inside the recording's band are found.
         record["line_noise"] = remove_line_noise(raw, line_frequency, method=paradigm.cleaning.line_noise,
                                                  picks=[t for t in FILTERED if t in raw])
+    courses = None
+    if paradigm.rejection.muscle_z is not None:
+        # After line removal, before the pass band takes the high band away; combined
+        # once the bad channels are known.
+        from .muscle import muscle_courses
+
+        courses = muscle_courses(raw)
     record["filter"] = filter_pass_band(raw, paradigm.cleaning.pass_band)
     names = [raw.ch_names[i] for i in picks]
     groups = by_type(types_of(raw.info, picks))
@@ -435,6 +442,11 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
         raw.info["bads"] = sorted(bads)
         raw.interpolate_bads(reset_bads=True, mode="accurate", origin=INTERPOLATION_ORIGIN, verbose="error")
     record["interpolated"] = sorted(bads)
+    if courses is not None:
+        from .muscle import find_muscle
+
+        record["muscle"] = find_muscle(courses, paradigm.rejection.muscle_z, exclude=bads)
+        del courses
     log.info("%s interpolated%s", _count(len(bads), "bad channel"),
              (": " + ", ".join(f"{c} ({r})" for c, r in sorted(bads.items()))) if bads else "")
     method = ocular_method(raw, paradigm.cleaning.ocular)

@@ -183,8 +183,9 @@ def _segment_and_reject(raw, markers, paradigm, cleaning):
         copy = raw.copy().filter(paradigm.rejection.detection_high_pass, None, picks=picks, verbose="error")
         detection, _, _ = cut(copy, plan, window, picks)
         info = mne.pick_info(raw.info, picks)
+    dropped = _muscle_drops(entries, window, cleaning.get("muscle"))
     data, entries, record = reject(x, times, entries, ch_names, paradigm, baseline, detection, info,
-                                   types_of(raw.info, picks))
+                                   types_of(raw.info, picks), dropped=dropped)
     ocular = cleaning.get("ocular") or {}
     corrected = ocular.get("method") not in (None, "none") and not ocular.get("skipped_reason")
     record["kept_blinks"] = None if corrected else kept_blinks(raw, entries, window)
@@ -193,6 +194,28 @@ def _segment_and_reject(raw, markers, paradigm, cleaning):
     log.info("Kept %d of %d trials (%s)", kept, len(entries),
              ", ".join(f"{c} {n['kept']}" for c, n in counts.items()))
     return data, times, entries, ch_names, record, counts
+
+
+def _muscle_drops(entries, window, muscle):
+    """Per cut trial, the muscle reason that drops it, or None (see heschl.muscle)."""
+    from .muscle import overlapping
+
+    n_cut = sum(1 for e in entries if e.get("index") is not None)
+    dropped = [None] * n_cut
+    if not muscle or not muscle["stretches_s"]:
+        return dropped
+    lo, hi = muscle["band_hz"]
+    for entry in entries:
+        if entry.get("index") is None:
+            continue
+        hit = overlapping(entry["onset_s"], window, muscle["stretches_s"])
+        if hit is not None:
+            dropped[entry["index"]] = (f"muscle: {lo:.4g}-{hi:.4g} Hz power above z {muscle['limit_z']:g} "
+                                       f"from {hit[0]:.2f} to {hit[1]:.2f} s")
+    n = sum(r is not None for r in dropped)
+    if n:
+        log.info("Muscle stretches drop %d of %d trials before rejection", n, n_cut)
+    return dropped
 
 
 def package_versions():

@@ -117,7 +117,8 @@ def cut(raw, plan, window, picks=None):
     return x, times, entries
 
 
-def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None, info=None, types=None):
+def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None, info=None, types=None,
+           dropped=None):
     """Baseline-correct, apply the rejection policy, and split kept trials by condition.
 
     Parameters
@@ -138,6 +139,9 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
     types : list of str or None
         Sensor type of each channel ("eeg", "mag", "grad"); None means all EEG. Fixed
         limits are those of each channel's type.
+    dropped : list of (str or None) or None
+        Per cut trial, a reason it is dropped before the rejection method sees it (e.g.
+        ``"muscle: ..."``), or None; such trials neither train nor meet the method.
 
     Returns
     -------
@@ -152,10 +156,13 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
     if baseline is not None and len(x):
         sel = (times >= baseline[0]) & (times <= baseline[1])
         x = x - x[:, :, sel].mean(axis=2, keepdims=True)
-    keep, reasons, record = _decide(x, detection, ch_names, paradigm, info,
-                                    types or ["eeg"] * len(ch_names))
-    if record.get("interpolated_epochs") is not None:
-        x = record.pop("interpolated_epochs")
+    types = types or ["eeg"] * len(ch_names)
+    if dropped is None or not any(dropped):
+        keep, reasons, record = _decide(x, detection, ch_names, paradigm, info, types)
+        if record.get("interpolated_epochs") is not None:
+            x = record.pop("interpolated_epochs")
+    else:
+        keep, reasons, record, x = _decide_rest(x, detection, ch_names, paradigm, info, types, dropped)
     data = {c: [] for c in paradigm.conditions}
     for entry in entries:
         idx = entry.get("index")
@@ -172,6 +179,32 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
         data = _equalise(data, entries)
     arrays = {c: (np.stack(v) if v else np.empty((0,) + x.shape[1:])) for c, v in data.items()}
     return arrays, entries, record
+
+
+def _decide_rest(x, detection, ch_names, paradigm, info, types, dropped):
+    """`_decide` on the trials not dropped beforehand; its results spread back over all."""
+    rest = np.array([r is None for r in dropped], dtype=bool)
+    idx = np.flatnonzero(rest)
+    part_keep, part_reasons, record = _decide(x[idx], None if detection is None else detection[idx], ch_names,
+                                              paradigm, info, types)
+    keep = np.zeros(len(x), dtype=bool)
+    keep[idx] = part_keep
+    reasons = list(dropped)
+    for i, r in zip(idx, part_reasons):
+        reasons[i] = r
+    if record.get("interpolated_epochs") is not None:
+        x = x.copy()
+        x[idx] = record.pop("interpolated_epochs")
+    if record.get("interpolated") is not None:
+        full = [[] for _ in range(len(x))]
+        for i, names in zip(idx, record["interpolated"]):
+            full[i] = names
+        record["interpolated"] = full
+    if record.get("cell_labels") is not None:
+        labels = np.zeros((len(x), len(ch_names)), dtype=np.int8)
+        labels[idx] = record["cell_labels"]
+        record["cell_labels"] = labels
+    return keep, reasons, record, x
 
 
 def _fixed_limits(rejection, types):

@@ -53,6 +53,11 @@ class SegmentSpec:
     skip_start: float             # s
 
 
+#: Default limit of the muscle score (heschl.muscle.find_muscle): chosen on heschl.synth,
+#: measured on tests/gen2 (benchmarks/muscle_recall.py).
+MUSCLE_Z = 8.0
+
+
 @dataclass(frozen=True)
 class Rejection:
     method: str
@@ -63,6 +68,7 @@ class Rejection:
     equalise: bool = False             # equalise kept trial counts across conditions
     # fixed: limits of the MEG sensor types, SI (T for magnetometers, T/m for gradiometers)
     peak_to_peak_meg: dict = field(default_factory=dict)
+    muscle_z: object = MUSCLE_Z        # focal high-frequency score limit (heschl.muscle), None = off
 
 
 @dataclass(frozen=True)

@@ -4,7 +4,7 @@ from __future__ import annotations
 from ..vocabulary import (BAD_CHANNEL_POLICIES, DESIGNS, DISPLAY_UNITS, LINE_NOISE_METHODS, OCULAR_POLICIES,
                           REFERENCE_WORDS, REJECTION_METHODS)
 from .files import _read_toml
-from .model import Cleaning, Condition, Contrast, EpochSpec, Paradigm, Rejection, SegmentSpec, SkipRule
+from .model import MUSCLE_Z, Cleaning, Condition, Contrast, EpochSpec, Paradigm, Rejection, SegmentSpec, SkipRule
 from .sections import _Section, _num, _show
 
 __all__ = ["QUALITY_KEYS", "PEAK_TO_PEAK_KEYS", "load_paradigm"]
@@ -144,7 +144,7 @@ PEAK_TO_PEAK_KEYS = {
 
 
 def _rejection(top, conditions):
-    section = top.sub("rejection", {"method", "min_trials", "detection_high_pass", "max_cluster", "equalise"}
+    section = top.sub("rejection", {"method", "min_trials", "detection_high_pass", "max_cluster", "equalise", "muscle_z"}
                       | set(PEAK_TO_PEAK_KEYS))
     method = section.string("method", choices=REJECTION_METHODS)
     ptp, meg = None, {}
@@ -166,9 +166,13 @@ def _rejection(top, conditions):
     equalise = section.raw("equalise", default=False)
     if not isinstance(equalise, bool):
         section.fail("equalise", f"expected true or false, got {_show(equalise)}", "write equalise = true or false")
+    if section.raw("muscle_z", default=MUSCLE_Z) is False:
+        muscle = None
+    else:
+        muscle = section.number("muscle_z", default=MUSCLE_Z, low=0.0, strict_low=True)
     counts = section.sub("min_trials", set(conditions), default={})
     min_trials = {c: counts.integer(c, low=1) for c in counts.data}
-    return Rejection(method, ptp, min_trials, high_pass, max_cluster, equalise, meg)
+    return Rejection(method, ptp, min_trials, high_pass, max_cluster, equalise, meg, muscle)
 
 
 def _stimulation(top, cleaning):

@@ -146,7 +146,12 @@ def _unusable(study, recording, analysis, site, found, exc, hashes, definitions,
     if spectra is None:
         spectra = channel_spectra(raw, found["fmax"])  # the data as read: harmonising stopped
     stage = getattr(exc, "stage", None) or found["stage"]
-    qc = unusable_record(recording, analysis, raw, found["harmonised"], cleaning, stage, str(exc))
+    # The page is about this file: its path (relative to wherever heschl ran) would only
+    # repeat the header; the console and provenance keep the whole message.
+    reason = str(exc)
+    prefix = f"{display_path(recording.path)}: "
+    reason = reason[len(prefix):] if reason.startswith(prefix) else reason
+    qc = unusable_record(recording, analysis, raw, found["harmonised"], cleaning, stage, reason)
     evidence = unusable_evidence(analysis, raw.info, cleaning, spectra, site.line_frequency, stage)
     clock.lap("evidence")
     log.warning("Verdict unusable at %s: %s", stage, exc)

@@ -7,7 +7,7 @@ virtual EOG electrodes); the site layer references, picks and resamples it.
 Amplitudes named ``*_uv`` in the parameters are the noise-free values at the named
 channel after average reference over the study's common channels, in microvolts.
 
-The ongoing background is an aperiodic part (1/f above a 4 Hz knee, 3 µV rms per channel
+The ongoing background is an aperiodic part (1/f above a 4 Hz knee, 2 µV rms per channel
 in 1-30 Hz, mixed from a dozen dipoles plus a little independent sensor noise), a
 posterior alpha rhythm and a fronto-central mu rhythm; together about 3.5-5 µV rms per
 channel in 1-30 Hz. Most of it sits where event-related windows of 100 ms or more

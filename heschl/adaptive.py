@@ -384,7 +384,7 @@ def _fit(detection, info, folds, random_state, n_jobs):
 
 
 def outlier_floor(peak_to_peak):
-    """Upper Tukey fence (Q3 + 1.5 IQR) of each column of ``peak_to_peak``.
+    """Upper Tukey fence (Q3 + `TUKEY_K` IQR) of each column of ``peak_to_peak``.
 
     A value inside the fences is not an outlier of its own channel's distribution
     (Tukey 1977, docs/REFERENCES.md F45), so no learnt threshold is allowed below it.
@@ -516,7 +516,7 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
     _interpolate(analysis, info, interp, keep, _fitted_dots(model))
     record = _record(model, names, types, candidates, folds, max_cluster, source, keep, by_consensus, interp,
                      clusters)
-    record["threshold_floor"] = "upper Tukey fence (Q3 + 1.5 IQR) of each channel's peak-to-peak values"
+    record["threshold_floor"] = f"upper Tukey fence (Q3 + {TUKEY_K:g} IQR) of each channel's peak-to-peak values"
     record["thresholds_raised"] = {n: float(raised[n]) * DISPLAY[t][1] for n, t in zip(names, types) if n in raised}
     if raised:
         log.info("Raised %d of %d learnt thresholds to their channel's outlier fence", len(raised), len(names))

@@ -11,7 +11,7 @@ import numpy as np
 
 from .errors import InputDataError, UnusableRecording, problem
 from .sensors import DATA_TYPES, by_type, data_picks, show, types_of
-from .vocabulary import INTERPOLATION_ORIGIN
+from .vocabulary import INTERPOLATION_ORIGIN, MAD_TO_SD
 
 __all__ = ["BadChannelDetector", "filter_pass_band", "rereference", "clean"]
 
@@ -207,14 +207,14 @@ FLAT_FLOOR = {"eeg": 0.5e-6}
 
 def _robust_amplitude(x):
     med = np.median(x, axis=1, keepdims=True)
-    return 1.4826 * np.median(np.abs(x - med), axis=1)
+    return MAD_TO_SD * np.median(np.abs(x - med), axis=1)
 
 
 def _robust_z(values, live):
     """Robust z of log values (median and MAD over the live channels), and the median value."""
     logs = np.log(np.maximum(values, 1e-30))
     centre = np.median(logs[live])
-    spread = 1.4826 * np.median(np.abs(logs[live] - centre)) or 1e-12
+    spread = MAD_TO_SD * np.median(np.abs(logs[live] - centre)) or 1e-12
     return (logs - centre) / spread, float(np.exp(centre))
 
 
@@ -254,7 +254,7 @@ def _poor_windows(r, live, poor_z, margin):
     """
     f = np.arctanh(np.clip(r, -0.999, 0.999))
     centre = np.median(f[live], axis=0)
-    spread = 1.4826 * np.median(np.abs(f[live] - centre), axis=0)
+    spread = MAD_TO_SD * np.median(np.abs(f[live] - centre), axis=0)
     spread = np.maximum(spread, 1e-6)
     typical = np.median(r[live], axis=0)
     poor = ((f - centre) / spread < -poor_z) & (r < typical - margin)

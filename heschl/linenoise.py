@@ -79,15 +79,22 @@ def line_noise_ratio(x, sfreq, frequency, *, bandwidth=1.0, neighbours=_NEIGHBOU
         raise InputDataError(problem(where, f"frequency = {frequency:g} Hz with neighbours up to {outer:g} Hz away "
                                      f"does not fit between 0 and Nyquist ({sfreq / 2:g} Hz)",
                                      "measure a frequency inside the recorded band", key="frequency"))
+    _, psd, band, ring = _band_and_ring(x, sfreq, frequency, bandwidth, (inner, outer), where)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return psd[:, band].mean(axis=-1) / psd[:, ring].mean(axis=-1)
+
+
+def _band_and_ring(x, sfreq, frequency, bandwidth, neighbours, where):
+    """Welch density of ``x`` (Hann, 50 % overlap), its bin width, and the masks of the
+    band around ``frequency`` and of the ring of neighbouring bands."""
     nperseg = _segment_samples(x.shape[-1], sfreq, where)
     freqs, psd = scipy.signal.welch(x, fs=sfreq, window="hann", nperseg=nperseg, noverlap=nperseg // 2,
                                     detrend="constant", scaling="density", axis=-1)
     distance = np.abs(freqs - frequency)
     slack = 1e-9 * sfreq  # bins on an edge count as inside despite rounding of the grid
     band = distance <= bandwidth / 2 + slack
-    ring = (distance >= inner - slack) & (distance <= outer + slack)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return psd[:, band].mean(axis=-1) / psd[:, ring].mean(axis=-1)
+    ring = (distance >= neighbours[0] - slack) & (distance <= neighbours[1] + slack)
+    return freqs[1] - freqs[0], psd, band, ring
 
 
 def _segment_samples(n_times, sfreq, where):
@@ -182,14 +189,8 @@ def channel_line_amplitudes(raw, frequency, picks, bandwidth=1.0):
     sfreq = float(raw.info["sfreq"])
     if not 0 < frequency - _NEIGHBOURS[1] < frequency + _NEIGHBOURS[1] < sfreq / 2:
         return None
-    x = raw.get_data(picks=picks)
-    nperseg = _segment_samples(x.shape[-1], sfreq, "channel_line_amplitudes")
-    freqs, psd = scipy.signal.welch(x, fs=sfreq, window="hann", nperseg=nperseg, noverlap=nperseg // 2,
-                                    detrend="constant", scaling="density", axis=-1)
-    step = freqs[1] - freqs[0]
-    distance = np.abs(freqs - frequency)
-    band = distance <= bandwidth / 2 + 1e-9 * sfreq
-    ring = (distance >= _NEIGHBOURS[0]) & (distance <= _NEIGHBOURS[1])
+    step, psd, band, ring = _band_and_ring(raw.get_data(picks=picks), sfreq, frequency, bandwidth, _NEIGHBOURS,
+                                           "channel_line_amplitudes")
     excess = (psd[:, band] - psd[:, ring].mean(axis=-1, keepdims=True)).sum(axis=-1) * step
     return np.sqrt(np.maximum(excess, 0.0))
 

@@ -23,6 +23,7 @@ import scipy.fft
 import scipy.signal
 
 from .sensors import data_picks, types_of
+from .vocabulary import MAD_TO_SD
 
 __all__ = ["muscle_band", "muscle_courses", "find_muscle", "focal_count", "robust_z", "overlapping", "MUSCLE_TYPES"]
 
@@ -149,7 +150,7 @@ def robust_z(summed):
     if not finite.any():
         return np.zeros_like(summed)
     centre = np.median(summed[finite])
-    spread = 1.4826 * np.median(np.abs(summed[finite] - centre))
+    spread = MAD_TO_SD * np.median(np.abs(summed[finite] - centre))
     out = (summed - centre) / (spread if spread > 0 else 1.0)
     out[~finite] = 0.0
     return out

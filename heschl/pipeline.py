@@ -188,7 +188,7 @@ def _segment_and_reject(raw, markers, paradigm, cleaning):
         copy = raw.copy().filter(paradigm.rejection.detection_high_pass, None, picks=picks, verbose="error")
         detection, _, _ = cut(copy, plan, window, picks)
         info = mne.pick_info(raw.info, picks)
-    dropped = _muscle_drops(entries, window, cleaning.get("muscle"))
+    dropped = _muscle_drops(entries, window, cleaning.get("muscle"), len(x))
     data, entries, record = reject(x, times, entries, ch_names, paradigm, baseline, detection, info,
                                    types_of(raw.info, picks), dropped=dropped)
     ocular = cleaning.get("ocular") or {}
@@ -201,11 +201,10 @@ def _segment_and_reject(raw, markers, paradigm, cleaning):
     return data, times, entries, ch_names, record, counts
 
 
-def _muscle_drops(entries, window, muscle):
-    """Per cut trial, the muscle reason that drops it, or None (see heschl.muscle)."""
+def _muscle_drops(entries, window, muscle, n_cut):
+    """Per cut trial (``n_cut`` of them), the muscle reason that drops it, or None (see heschl.muscle)."""
     from .muscle import overlapping
 
-    n_cut = sum(1 for e in entries if e.get("index") is not None)
     dropped = [None] * n_cut
     if not muscle or not muscle["stretches_s"]:
         return dropped

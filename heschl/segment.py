@@ -156,13 +156,8 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
     if baseline is not None and len(x):
         sel = (times >= baseline[0]) & (times <= baseline[1])
         x = x - x[:, :, sel].mean(axis=2, keepdims=True)
-    types = types or ["eeg"] * len(ch_names)
-    if dropped is None or not any(dropped):
-        keep, reasons, record = _decide(x, detection, ch_names, paradigm, info, types)
-        if record.get("interpolated_epochs") is not None:
-            x = record.pop("interpolated_epochs")
-    else:
-        keep, reasons, record, x = _decide_rest(x, detection, ch_names, paradigm, info, types, dropped)
+    keep, reasons, record, x = _decide_rest(x, detection, ch_names, paradigm, info,
+                                            types or ["eeg"] * len(ch_names), dropped)
     data = {c: [] for c in paradigm.conditions}
     for entry in entries:
         idx = entry.get("index")
@@ -182,7 +177,16 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
 
 
 def _decide_rest(x, detection, ch_names, paradigm, info, types, dropped):
-    """`_decide` on the trials not dropped beforehand; its results spread back over all."""
+    """`_decide` on the trials not dropped beforehand; its results spread back over all.
+
+    Returns the keep mask, the reasons, the record and the analysis data (with the
+    adaptive method's repairs in place).
+    """
+    if dropped is None or not any(dropped):
+        keep, reasons, record = _decide(x, detection, ch_names, paradigm, info, types)
+        if record.get("interpolated_epochs") is not None:
+            x = record.pop("interpolated_epochs")
+        return keep, reasons, record, x
     rest = np.array([r is None for r in dropped], dtype=bool)
     idx = np.flatnonzero(rest)
     part_keep, part_reasons, record = _decide(x[idx], None if detection is None else detection[idx], ch_names,

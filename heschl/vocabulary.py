@@ -15,8 +15,13 @@ __all__ = [
     "LOG_POWER_UNITS", "LINE_NOISE_METHODS", "OCULAR_METHODS", "OCULAR_POLICIES", "BAD_CHANNEL_POLICIES",
     "REFERENCE_WORDS", "RECORDING_REFERENCE_WORDS", "REJECTION_METHODS", "BAND_CLOSURES",
     "DEFAULT_BAND_CLOSURE", "COMBINES", "POLARITIES", "MIN_ADAPTIVE_EPOCHS", "INTERPOLATION_ORIGIN",
-    "DEFAULT_SUBJECT_PATTERN", "FLAG_LEVELS", "MAX_CHANNEL_NAME",
+    "DEFAULT_SUBJECT_PATTERN", "FLAG_LEVELS", "MAX_CHANNEL_NAME", "MAD_TO_SD",
 ]
+
+# --------------------------------------------------------------------------- statistics
+#: Scale of the median absolute deviation to a normal standard deviation, 1 / Phi^-1(3/4)
+#: (Leys et al. 2013, docs/REFERENCES.md F41); every robust z and robust amplitude uses it.
+MAD_TO_SD = 1.4826
 
 # --------------------------------------------------------------------------- paradigms
 #: Paradigm designs: epochs around markers (event-related, steady-state) or segments (resting).

@@ -47,8 +47,7 @@ def quality_record(recording, analysis, source, steps, rows, skipped_sets):
              + _flags.input_flags(markers, harmonised["file_sampling_rate"], rows)
              + _flags.inversion_flags(inversion, cleaning["reference"]) + _flags.ocular_flags(ocular, limits))
     return {
-        "participant_id": recording.participant_id, "site": recording.site, "group": recording.group,
-        "paradigm": recording.paradigm,
+        **_identity(recording),
         "verdict": verdict(found),
         "flags": found,
         "thresholds": limits,
@@ -67,6 +66,12 @@ def quality_record(recording, analysis, source, steps, rows, skipped_sets):
         "line_noise": cleaning.get("line_noise"),
         "feature_sets": {"used": [fs.name for fs in analysis.feature_sets], "not_applicable": skipped_sets},
     }
+
+
+def _identity(recording):
+    """The keys that name a recording, first in every QC record."""
+    return {"participant_id": recording.participant_id, "site": recording.site, "group": recording.group,
+            "paradigm": recording.paradigm}
 
 
 #: Words for the stage at which an unusable recording stopped, for its flag.
@@ -104,8 +109,7 @@ def unusable_record(recording, analysis, raw, harmonised, cleaning, stage, reaso
         channels["bad_fraction"], channels["interpolated_fraction"] = channels["interpolated_fraction"], None
     sfreq = float(raw.info["sfreq"])
     return {
-        "participant_id": recording.participant_id, "site": recording.site, "group": recording.group,
-        "paradigm": recording.paradigm,
+        **_identity(recording),
         "verdict": verdict(found),
         "flags": found,
         "unusable": {"stage": stage, "reason": reason},

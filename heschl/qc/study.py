@@ -86,6 +86,7 @@ import re
 
 import numpy as np
 
+from ..vocabulary import MAD_TO_SD
 from .grand import GRAND_CHANNELS, filled, grand_averages
 
 __all__ = ["qc_columns", "metric_columns", "column_label", "robust_spread", "robust_range", "outside",
@@ -96,8 +97,6 @@ log = logging.getLogger(__name__)
 
 #: Half-width of every robust range, in spreads (scaled MADs).
 ROBUST_K = 3.0
-#: Scale of the MAD to a normal standard deviation, 1 / Phi^-1(3/4).
-MAD_TO_SD = 1.4826
 #: Scale of the mean absolute deviation to a normal standard deviation, sqrt(pi / 2).
 MEAN_AD_TO_SD = 1.2533
 #: Spread when all values agree, as a fraction of |median| (heschl's choice).

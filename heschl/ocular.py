@@ -49,21 +49,29 @@ class OcularCorrection:
         the EOG source(s), with propagation factors estimated on the whole recording as in
         Gratton, Coles & Donchin (1983, Electroencephalogr Clin Neurophysiol 55:468-484),
         without their event-related averaging step. ``"ica"``: mne's ICA (FastICA) and
-        removal of the components that correlate with an EOG source. ``"none"``: nothing.
+        removal of the ocular components: with an EOG channel, those that correlate with
+        it; without one, those whose topography and time course have every property of
+        a blink or a horizontal eye movement (:mod:`heschl.eyecomponents`).
+        ``"none"``: nothing.
     eog : sequence of str or None, default=None
         Channels to use as EOG sources; None means every channel of type ``eog``
         (except those in ``info["bads"]``).
     stand_ins : sequence of str, default=("Fp1", "Fp2", "AF7", "AF8", "AF3", "AF4")
         Frontal EEG channels whose mean stands in for a vertical EOG when no EOG channel
         was recorded (see Notes).
-    ica_components : float or int, default=0.99
-        Number of ICA components: a float in (0, 1) is the fraction of variance the PCA
-        components kept before ICA must explain; an int is the number itself.
+    ica_components : float or int, default=15
+        Number of ICA components: an int is the number itself; a float in (0, 1) is the
+        fraction of variance the PCA components kept before ICA must explain. A count is
+        the default because a few large artefacts dominate the variance: on heschl.synth
+        the fraction 0.99 kept 2-3 components, too few to separate blinks from the rest.
     max_components : int, default=15
         Upper limit on the number of ICA components (also limited by the data's rank).
     threshold : float, default=0.5
-        A component whose absolute correlation with any EOG source exceeds this is
-        removed.
+        With an EOG channel, a component whose absolute correlation with any EOG source
+        exceeds this is removed.
+    limits : dict or None, default=None
+        Limits of the component properties used without an EOG channel; None means
+        :data:`heschl.eyecomponents.LIMITS`.
     random_state : int, default=0
         Seed of FastICA.
     high_pass : float, default=1.0
@@ -104,9 +112,17 @@ class OcularCorrection:
     n_components_ : int or None
     ica_converged_ : bool or None
         Whether FastICA converged within 1000 iterations (kept as data, not warned).
+    selection_ : {"eog-correlation", "properties"} or None
+        How ``"ica"`` chose components: by correlation with a recorded EOG channel, or,
+        without one, by the properties of ocular components.
     excluded_ : list of dict
-        ``{"component": int, "correlation": float, "source": str}`` for each removed ICA
-        component (signed correlation with the source it matched best).
+        ``{"component": int, "kind": str, "correlation": float, "source": str}`` for each
+        removed ICA component (signed correlation with the source it matched best; kind
+        "eog" for the correlation rule, "blink" or "saccade" for the property rule, which
+        also adds ``"properties"``: the component's properties).
+    component_properties_ : list of dict or None
+        The properties (:func:`heschl.eyecomponents.component_properties`) of every ICA
+        component when chosen by properties.
     component_correlations_ : ndarray, shape (n_components, n_sources), or None
         Signed correlation of every ICA component with every EOG source (for ``"ica"``),
         on the data it was fitted on; the QC page draws it.
@@ -130,20 +146,25 @@ class OcularCorrection:
     propagation factors (usually upwards: some brain signal is subtracted and part of the
     blink stays, with the opposite sign); the stand-ins themselves are not regressed on
     a proxy made of them (they would lose their own signal), so they keep their blinks.
-    ``"ica"`` is fitted on every EEG channel, uses the proxy only to choose components and
-    corrects the stand-ins too; prefer it when a site recorded no EOG. Horizontal eye
-    movements largely cancel in the proxy's left-right mean and are not corrected.
+    ``"ica"`` is fitted on every EEG channel and corrects the stand-ins too; without an EOG
+    it chooses components by their properties (topography at the frontal pole and
+    left-right symmetric for blinks, lateral and antisymmetric for horizontal movements,
+    correlation with virtual EOGs, slow and heavy-tailed time course), not by correlation
+    with the proxy alone, so horizontal movements are found too and a fronto-central
+    brain component is not removed for sharing the proxy's brain signal. The proxy then
+    only serves the residual measure.
     """
 
     def __init__(self, method="regression", *, eog=None, stand_ins=("Fp1", "Fp2", "AF7", "AF8", "AF3", "AF4"),
-                 ica_components=0.99, max_components=15, threshold=0.5, random_state=0, high_pass=1.0,
-                 fit_reject=1e-3):
+                 ica_components=15, max_components=15, threshold=0.5, limits=None, random_state=0,
+                 high_pass=1.0, fit_reject=1e-3):
         self.method = method
         self.eog = eog
         self.stand_ins = stand_ins
         self.ica_components = ica_components
         self.max_components = max_components
         self.threshold = threshold
+        self.limits = limits
         self.random_state = random_state
         self.high_pass = high_pass
         self.fit_reject = fit_reject
@@ -165,6 +186,7 @@ class OcularCorrection:
         self.corrected_channels_, self.measured_channels_, self.skipped_reason_ = [], [], None
         self.coef_, self.ica_, self.n_components_, self.excluded_ = None, None, None, []
         self.ica_converged_, self.component_correlations_ = None, None
+        self.selection_, self.component_properties_ = None, None
         self.residual_correlation_, self.fit_excluded_s_ = None, 0.0
         if self.method == "none":
             return self
@@ -249,8 +271,10 @@ class OcularCorrection:
             ``stand_ins``, ``corrected_channels``, ``skipped_reason``, ``fit_excluded_s``
             (seconds left out of the fit by ``fit_reject``), ``regression``
             (None, or ``coefficients`` {channel: {source: V/V}}, ``max_abs_coefficient``,
-            ``max_abs_channel``), ``ica`` (None, or ``n_components``, ``converged``, ``threshold``,
-            ``excluded``: list of {component, correlation, source}), ``residual_correlation``
+            ``max_abs_channel``), ``ica`` (None, or ``n_components``, ``converged``,
+            ``selection``, ``threshold``, ``limits`` (property rule only), ``excluded``: list of
+            {component, kind, correlation, source[, properties]}, ``properties``: every
+            component's properties or None), ``residual_correlation``
             (None, or ``before``, ``after``, ``by_source``, ``high_pass_hz``, ``n_channels``).
         """
         if not hasattr(self, "sources_"):
@@ -271,8 +295,13 @@ class OcularCorrection:
                 "max_abs_channel": self.corrected_channels_[int(rows.argmax())]}
         if self.ica_ is not None:
             rec["ica"] = {"n_components": int(self.n_components_), "converged": bool(self.ica_converged_),
-                          "threshold": float(self.threshold),
-                          "excluded": [dict(e) for e in self.excluded_]}
+                          "selection": self.selection_, "threshold": float(self.threshold),
+                          "limits": ({k: {p: list(v) for p, v in rules.items()} for k, rules in self._limits().items()}
+                                     if self.selection_ == "properties" else None),
+                          "excluded": [dict(e, properties=dict(e["properties"])) if "properties" in e else dict(e)
+                                       for e in self.excluded_],
+                          "properties": ([dict(p) for p in self.component_properties_]
+                                         if self.component_properties_ is not None else None)}
         if self.residual_correlation_ is not None:
             rec["residual_correlation"] = dict(self.residual_correlation_, high_pass_hz=float(self.high_pass),
                                                n_channels=len(self.measured_channels_))
@@ -300,11 +329,16 @@ class OcularCorrection:
         if isinstance(n, bool) or not (isinstance(n, numbers.Integral) and n >= 2
                                        or isinstance(n, numbers.Real) and 0 < n < 1):
             raise DefinitionError(problem(_WHERE, f"ica_components = {n!r} is neither a variance fraction in (0, 1) "
-                                          "nor a count of at least 2", "choose e.g. 0.99 or 15", key="ica_components"))
+                                          "nor a count of at least 2", "choose e.g. 15 or 0.99", key="ica_components"))
         if isinstance(self.max_components, bool) or not (isinstance(self.max_components, numbers.Integral)
                                                          and self.max_components >= 2):
             raise DefinitionError(problem(_WHERE, f"max_components = {self.max_components!r} is not a count of at "
                                           "least 2", "choose e.g. 15", key="max_components"))
+
+    def _limits(self):
+        from .eyecomponents import LIMITS
+
+        return LIMITS if self.limits is None else self.limits
 
     def _find_sources(self, raw, eeg):
         """EOG channel names and whether they are frontal stand-ins."""
@@ -363,18 +397,35 @@ class OcularCorrection:
             ica.fit(hp, picks=eeg, verbose="error")
         self.ica_converged_ = int(ica.n_iter_) < _MAX_ITER
         if not self.ica_converged_:
-            log.warning("FastICA stopped after %d iterations without converging", _MAX_ITER)
-        r = _correlations(ica.get_sources(hp).get_data(), src)
+            # Common with the near-Gaussian background components; recorded, not warned.
+            log.info("FastICA stopped after %d iterations without converging", _MAX_ITER)
+        courses = ica.get_sources(hp).get_data()
+        r = _correlations(courses, src)
         self.component_correlations_ = r
-        for k, row in enumerate(r):
-            j = int(np.abs(row).argmax())
-            if abs(row[j]) > self.threshold:
-                self.excluded_.append({"component": k, "correlation": float(row[j]),
-                                       "source": self.source_labels_[j]})
+        if self.stand_ins_used_:
+            from .eyecomponents import component_properties, ocular_kind
+
+            self.selection_ = "properties"
+            self.component_properties_ = component_properties(ica.get_components(), courses, eeg,
+                                                              hp.info["sfreq"], data=hp.get_data(picks=eeg),
+                                                              high_pass=self.high_pass)
+            for k, props in enumerate(self.component_properties_):
+                kind = ocular_kind(props, self._limits())
+                if kind:
+                    self.excluded_.append({"component": k, "kind": kind, "correlation": float(r[k, 0]),
+                                           "source": self.source_labels_[0], "properties": props})
+            rule = "with every property of a blink or a horizontal eye movement"
+        else:
+            self.selection_ = "eog-correlation"
+            for k, row in enumerate(r):
+                j = int(np.abs(row).argmax())
+                if abs(row[j]) > self.threshold:
+                    self.excluded_.append({"component": k, "kind": "eog", "correlation": float(row[j]),
+                                           "source": self.source_labels_[j]})
+            rule = f"|r| > {self.threshold:g} with {', '.join(self.source_labels_)}"
         ica.exclude = [e["component"] for e in self.excluded_]
         self.ica_ = ica
-        log.info("ICA: removed %d of %d components (|r| > %g with %s)", len(self.excluded_), self.n_components_,
-                 self.threshold, ", ".join(self.source_labels_))
+        log.info("ICA: removed %d of %d components (%s)", len(self.excluded_), self.n_components_, rule)
         corrected = ica.apply(hp.copy(), verbose="error") if self.excluded_ else hp
         return corrected.get_data(picks=self.measured_channels_)
 

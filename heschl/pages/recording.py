@@ -312,6 +312,60 @@ def figure_components(ica):
     return fig
 
 
+#: Property columns of the component table: key, heading, digits.
+_PROPERTY_COLUMNS = (("frontal", "frontal pole", 3), ("lateral", "lateral frontal", 3), ("mirror", "left-right", 2),
+                     ("veog", "|r| vEOG", 2), ("heog", "|r| hEOG", 2), ("low", "share < 4 Hz", 2),
+                     ("kurtosis", "kurtosis", 3))
+_KIND_NAMES = {"blink": "blink", "saccade": "horizontal eye movement", "eog": "correlated with EOG"}
+
+
+def figure_component_maps(ica, sensors):
+    """Topography of each removed component on the sensor positions (colour: relative weight)."""
+    removed = ica["excluded"][:4]
+    fig, axes = figure(2.6 * len(removed) + 0.8, 2.9, ncols=len(removed))
+    axes = [[axes]] if len(removed) == 1 else axes
+    where = {c: i for i, c in enumerate(sensors["channels"])}
+    for ax, k in zip(axes[0], removed):
+        chans = [c for c in ica["channels"] if c in where]
+        weights = [ica["patterns"][str(k)][ica["channels"].index(c)] or 0.0 for c in chans]
+        _head(ax, sensors["head_radius"])
+        dots = ax.scatter([sensors["x"][where[c]] for c in chans], [sensors["y"][where[c]] for c in chans],
+                          c=weights, cmap="RdBu_r", vmin=-1, vmax=1, s=28, edgecolors=PALETTE["outline"],
+                          linewidths=0.3, zorder=3)
+        ax.set_title(f"component {k}: {_KIND_NAMES.get(ica['kinds'][str(k)], ica['kinds'][str(k)])}", fontsize=8)
+        ax.set_aspect("equal")
+        ax.set_xticks([])
+        ax.set_yticks([])
+        extent = 1.25 * sensors["head_radius"]
+        ax.set_xlim(-extent, extent)
+        ax.set_ylim(-extent, extent)
+    fig.colorbar(dots, ax=list(axes[0]), shrink=0.8, label="weight / largest weight")
+    return fig
+
+
+def _component_table(ica):
+    """Every component's properties, the limits, and the decision, as a section table."""
+    limits = ica["limits"] or {}
+    head = ["component"] + [title for _, title, _ in _PROPERTY_COLUMNS] + ["decision"]
+    rows = []
+    for k, props in enumerate(ica["properties"]):
+        kind = ica["kinds"].get(str(k))
+        rows.append({"cls": "short" if kind else "",
+                     "cells": [str(k)] + [_num(props.get(key), d) for key, _, d in _PROPERTY_COLUMNS]
+                     + [f"removed: {_KIND_NAMES.get(kind, kind)}" if kind else "kept"]})
+    for kind, rules in limits.items():
+        rows.append({"cls": "limits", "cells": [f"{_KIND_NAMES.get(kind, kind)} needs"] + [
+            (f"{'≥' if rules[key][0] == 'min' else '≤'} {rules[key][1]:g}" if key in rules else "")
+            for key, _, _ in _PROPERTY_COLUMNS] + ["every limit"]})
+    return {"head": head, "rows": rows}
+
+
+def _num(value, digits):
+    from .common import num
+
+    return num(value, digits)
+
+
 def figure_weights(regression):
     """Regression weights (propagation factors) per corrected channel and source."""
     fig, ax = figure(9.6, 2.6)
@@ -334,7 +388,7 @@ def figure_blinks(blinks):
     times = [t * 1e3 for t in blinks["times"]]
     for colour, name, before, after in zip(colours(), blinks["channels"], blinks["before"],
                                            blinks["after"] or [None] * len(blinks["channels"])):
-        ax.plot(times, _nan(before), color=colour, lw=1.0, ls="--" if after else "-",
+        ax.plot(times, _nan(before), color=colour, lw=1.0, ls="--" if after else "-", alpha=0.6 if after else 1.0,
                 label=f"{name} before" if after else name)
         if after:
             ax.plot(times, _nan(after), color=colour, lw=1.6, label=f"{name} after")
@@ -349,8 +403,20 @@ def figure_blinks(blinks):
 def _ocular_section(evidence):
     ocular = evidence["ocular"]
     figures, notes = [], []
-    if ocular.get("ica"):
-        figures.append(_figure("ica", "ICA components and the eye signal", figure_components(ocular["ica"]),
+    table = None
+    ica = ocular.get("ica")
+    if ica and ica.get("selection") == "properties":
+        if ica["excluded"] and ica.get("patterns") and evidence.get("sensors"):
+            figures.append(_figure("ica-maps", "Removed ICA components", figure_component_maps(ica, evidence["sensors"]),
+                                   "Topography of each removed component (red and blue: opposite polarity). A blink "
+                                   "sits at the frontal pole, the same on both sides; a horizontal eye movement is "
+                                   "positive on one side of the front and negative on the other. A removed component "
+                                   "whose weight reaches the centre or the back of the head took brain signal."))
+        table = _component_table(ica)
+        notes.append(f"No EOG channel: ICA components were judged by their properties (table); "
+                     f"{len(ica['excluded'])} of {len(ica['properties'])} removed.")
+    elif ica:
+        figures.append(_figure("ica", "ICA components and the eye signal", figure_components(ica),
                                "Components above the dashed threshold were removed. Look for one or two clear "
                                "ocular components; many removed components mean brain signal went with them."))
     if ocular.get("regression"):
@@ -370,7 +436,9 @@ def _ocular_section(evidence):
         notes.append(f"Blink-locked average: {ocular['blinks_missing']}.")
     elif blinks is not None and not blinks.get("before"):
         notes.append(f"No blinks found on {blinks['source']}: no blink-locked average.")
-    return _section("ocular", "Ocular artefacts", figures, " ".join(notes) or None)
+    section = _section("ocular", "Ocular artefacts", figures, " ".join(notes) or None)
+    section["table"] = table
+    return section
 
 
 # -- the design's figures --------------------------------------------------------------------

@@ -309,9 +309,18 @@ class OcularWatch:
                "corrected": rec.get("method") not in (None, "none") and not rec.get("skipped_reason")}
         ica = getattr(ocular, "component_correlations_", None)
         if ica is not None:
-            excluded = {e["component"] for e in rec["ica"]["excluded"]}
+            excluded = {e["component"]: e["kind"] for e in rec["ica"]["excluded"]}
             out["ica"] = {"sources": rec.get("sources", []), "correlations": rounded(ica, 3),
-                          "excluded": sorted(excluded), "threshold": rec["ica"]["threshold"]}
+                          "excluded": sorted(excluded), "kinds": {str(k): v for k, v in excluded.items()},
+                          "threshold": rec["ica"]["threshold"], "selection": rec["ica"]["selection"],
+                          "limits": rec["ica"]["limits"],
+                          "properties": ([{k: rounded(v, 3) for k, v in props.items()} for props in rec["ica"]["properties"]]
+                                         if rec["ica"]["properties"] else None)}
+            if excluded:
+                patterns = ocular.ica_.get_components()
+                out["ica"]["channels"] = list(ocular.ica_.ch_names)
+                out["ica"]["patterns"] = {str(k): rounded(patterns[:, k] / np.abs(patterns[:, k]).max(), 3)
+                                          for k in sorted(excluded)}
         if rec.get("regression"):
             coefs = rec["regression"]["coefficients"]
             out["regression"] = {"channels": list(coefs), "sources": rec.get("sources", []),

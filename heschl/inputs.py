@@ -102,7 +102,32 @@ def discover(study):
                                                  f"rename the file or set sites.{site.name}.subject_pattern"))
                 pid = f"sub-{match.group(1)}"
                 found.append(Recording(site.name, pname, pid, groups.get(pid, "n/a"), path, site.datatype))
+    _check_unique(found)
     return found
+
+
+def _check_unique(found):
+    """A participant belongs to one site, and has one file per paradigm.
+
+    Outputs are named by participant and paradigm, so two recordings sharing both would
+    write the same files; the same participant at two sites is almost always two people
+    given the same id.
+    """
+    sites, files = {}, {}
+    for rec in found:
+        first = sites.setdefault(rec.participant_id, rec)
+        if first.site != rec.site:
+            raise DefinitionError(problem(
+                display_path(rec.path), f"participant id {rec.participant_id} is also found at site {first.site} "
+                f"({display_path(first.path)}); a participant id must be unique in the study",
+                f"give each site's participants their own ids (rename the files or set sites.{rec.site}"
+                ".subject_pattern to take a site prefix into the id)"))
+        other = files.setdefault((rec.participant_id, rec.paradigm), rec)
+        if other.path != rec.path:
+            raise DefinitionError(problem(
+                display_path(rec.path), f"{rec.participant_id} has a second {rec.paradigm} file "
+                f"({display_path(other.path)}) matched by sites.{rec.site}.files.{rec.paradigm}",
+                "keep one file per participant and paradigm, or narrow the file pattern"))
 
 
 def recording_files(path):

@@ -38,6 +38,13 @@ _MIN_FIT_S = 10.0
 #: FastICA iteration limit (mne's "auto" value for fastica).
 _MAX_ITER = 1000
 
+#: At most this many samples enter the ICA fit; longer recordings are decimated (every
+#: k-th sample of the whole recording, so every blink still contributes). The unmixing is
+#: instantaneous, so decimating the 1 Hz high-passed copy loses little; 50 000 samples is
+#: over 200 samples per free parameter of 15 components (heschl's choice; fitting on all
+#: of a 15-minute recording took FastICA over a minute).
+_MAX_FIT_SAMPLES = 50_000
+
 
 class OcularCorrection:
     """Remove eye blinks and movements from EEG channels.
@@ -110,6 +117,9 @@ class OcularCorrection:
     ica_ : mne.preprocessing.ICA or None
         The fitted ICA for ``"ica"``; its ``exclude`` lists the removed components.
     n_components_ : int or None
+    fit_decim_ : int or None
+        Every how many samples the ICA fit used (1 up to 50 000 samples, more for longer
+        recordings); the components' properties use every sample.
     ica_converged_ : bool or None
         Whether FastICA converged within 1000 iterations (kept as data, not warned).
     selection_ : {"eog-correlation", "properties"} or None
@@ -186,7 +196,7 @@ class OcularCorrection:
         self.corrected_channels_, self.measured_channels_, self.skipped_reason_ = [], [], None
         self.coef_, self.ica_, self.n_components_, self.excluded_ = None, None, None, []
         self.ica_converged_, self.component_correlations_ = None, None
-        self.selection_, self.component_properties_ = None, None
+        self.selection_, self.component_properties_, self.fit_decim_ = None, None, None
         self.residual_correlation_, self.fit_excluded_s_ = None, 0.0
         if self.method == "none":
             return self
@@ -295,6 +305,7 @@ class OcularCorrection:
                 "max_abs_channel": self.corrected_channels_[int(rows.argmax())]}
         if self.ica_ is not None:
             rec["ica"] = {"n_components": int(self.n_components_), "converged": bool(self.ica_converged_),
+                          "fit_decim": int(self.fit_decim_),
                           "selection": self.selection_, "threshold": float(self.threshold),
                           "limits": ({k: {p: list(v) for p, v in rules.items()} for k, rules in self._limits().items()}
                                      if self.selection_ == "properties" else None),
@@ -387,6 +398,7 @@ class OcularCorrection:
         import mne
 
         self.n_components_ = _n_components(hp.get_data(picks=eeg), self.ica_components, self.max_components)
+        self.fit_decim_ = max(1, int(np.ceil(hp.n_times / _MAX_FIT_SAMPLES)))
         seed = ({"rng": self.random_state} if "rng" in inspect.signature(mne.preprocessing.ICA).parameters
                 else {"random_state": self.random_state})  # mne >= 1.13 names the seed rng
         ica = mne.preprocessing.ICA(n_components=self.n_components_, method="fastica", max_iter=_MAX_ITER,
@@ -394,7 +406,7 @@ class OcularCorrection:
         with warnings.catch_warnings():
             # Non-convergence is recorded (ica_converged_) rather than raised as a warning.
             warnings.filterwarnings("ignore", message="FastICA did not converge")
-            ica.fit(hp, picks=eeg, verbose="error")
+            ica.fit(hp, picks=eeg, decim=self.fit_decim_, verbose="error")
         self.ica_converged_ = int(ica.n_iter_) < _MAX_ITER
         if not self.ica_converged_:
             # Common with the near-Gaussian background components; recorded, not warned.

@@ -1,0 +1,89 @@
+"""Bad input and faults: one clear line, a non-zero exit, nothing lost or half-written.
+
+Every case is made by code from a tiny recording of the independent generator (tests/gen2:
+one participant, 20 s oddball, 32 channels at 250 Hz); DEVELOPERS.md lists the cases
+("Bad input: cases, messages, tests"). Each test checks the message (one line naming the
+file and the fix), the exit code, that no output was written where none should be, and
+that the input files are unchanged.
+"""
+import hashlib
+import shutil
+from pathlib import Path
+
+import pytest
+
+from heschl.cli import main
+
+gen2 = pytest.importorskip("gen2")  # tests/gen2, on the path through pytest's rootdir
+
+
+def _hashes(root):
+    return {p: hashlib.sha256(p.read_bytes()).hexdigest() for p in sorted(Path(root, "raw").rglob("*")) if p.is_file()}
+
+
+@pytest.fixture(scope="module")
+def tiny(tmp_path_factory):
+    """A one-participant gen2 study (its study file, unprocessed)."""
+    root = tmp_path_factory.mktemp("tiny")
+    return gen2.make_study(root, n_channels=32, subjects=1, paradigms=("oddball",), size="test", seed=4,
+                           sfreq=250.0, duration_s=20.0)
+
+
+@pytest.fixture
+def study(tiny, tmp_path):
+    """A private copy of the tiny study."""
+    shutil.copytree(tiny.parent, tmp_path / "s")
+    return tmp_path / "s" / "study.toml"
+
+
+def _run(args, capsys):
+    code = main(args)
+    out, err = capsys.readouterr()
+    return code, out, err.strip()
+
+
+def _second_site(study):
+    """Add a site "otherlab" whose folder holds a copy of gen2lab's participant."""
+    root = study.parent
+    shutil.copytree(root / "raw" / "gen2lab", root / "raw" / "otherlab")
+    text = study.read_text(encoding="utf-8")
+    block = text[text.index("[sites.gen2lab]"):]
+    text += "\n" + block.replace("gen2lab", "otherlab")
+    study.write_text(text, encoding="utf-8")
+
+
+def test_the_same_participant_id_at_two_sites_is_refused_naming_both_files(study, capsys):
+    # Before: both sites wrote sub-G01_task-oddball_* and the group table mixed them.
+    _second_site(study)
+    before = _hashes(study.parent)
+    for command in ("check", "run"):
+        code, _, err = _run([command, str(study)], capsys)
+        assert code == 2, (command, err)
+        assert len(err.splitlines()) == 1 and "Traceback" not in err
+        assert "sub-G01" in err and "otherlab" in err and "gen2lab" in err and "unique" in err
+        assert "subject_pattern" in err   # the fix
+    assert not (study.parent / "derivatives").exists()
+    assert _hashes(study.parent) == before
+
+
+def test_distinct_ids_at_two_sites_pass(study, capsys):
+    # The fix the message names: each site's participants get their own ids.
+    _second_site(study)
+    folder = study.parent / "raw" / "otherlab"
+    for p in sorted(folder.rglob("*G01*"), key=lambda p: -len(p.parts)):
+        p.rename(p.with_name(p.name.replace("G01", "O01")))
+    (study.parent / "participants.tsv").write_text("participant_id\tgroup\nsub-G01\tcontrol\nsub-O01\tcontrol\n",
+                                                   encoding="utf-8")
+    code, out, err = _run(["check", str(study)], capsys)
+    assert code == 0, err
+
+
+def test_two_files_for_one_participant_and_paradigm_are_refused(study, capsys):
+    root = study.parent
+    src = next((root / "raw" / "gen2lab").rglob("*_raw.fif"))
+    shutil.copy(src, src.with_name(src.name.replace("_raw.fif", "_run-2_raw.fif")))
+    text = study.read_text(encoding="utf-8").replace("sub-*_task-oddball_raw.fif", "sub-*_task-oddball*raw.fif")
+    study.write_text(text, encoding="utf-8")
+    code, _, err = _run(["check", str(study)], capsys)
+    assert code == 2 and len(err.splitlines()) == 1
+    assert "second oddball file" in err and "run-2" in err

@@ -60,7 +60,7 @@ def process_and_write(study, recording, force=False, decision=None):
 
     Never raises for a problem with the recording: the error becomes part of the summary.
     """
-    from .inputs import input_hashes
+    from .inputs import display_path, input_hashes
     from .outputs import write_recording
     from .pipeline import process_recording
     from .signoff import signoff_for
@@ -72,17 +72,33 @@ def process_and_write(study, recording, force=False, decision=None):
         if not force and up_to_date(study, recording, hashes):
             summary["status"] = "unchanged"
             summary["page_redrawn"] = _refresh_page(study, recording, decision)
+            summary["unusable"] = _stored_unusable(study, recording)
+            summary["file"] = display_path(recording.path)
             return summary
         result = process_recording(study, recording, hashes)
         signoff = signoff_for(study, recording, decision, result["provenance"]["key"])
         write_recording(study.output, recording, result, lambda recorded: _page(recording, recorded, signoff))
         summary["verdict"] = result["qc"]["verdict"]
+        if result["qc"].get("unusable"):
+            summary["unusable"] = result["qc"]["unusable"]["reason"]
+            summary["file"] = display_path(recording.path)
     except HeschlError as exc:
         summary.update(status="failed", error=str(exc))
     except Exception as exc:  # one recording never stops the study; the reason is kept
         log.debug("unexpected failure", exc_info=True)
         summary.update(status="failed", error=f"{recording.path.name}: {exc.__class__.__name__}: {exc}")
     return summary
+
+
+def _stored_unusable(study, recording):
+    """The reason a recording processed before was unusable (from its qc.json), or None."""
+    from .outputs import recording_paths
+
+    try:
+        qc = json.loads(recording_paths(study.output, recording)["qc"].read_text(encoding="utf-8"))
+    except (OSError, ValueError, KeyError):
+        return None
+    return (qc.get("unusable") or {}).get("reason")
 
 
 def _page(recording, recorded, signoff):
@@ -132,7 +148,8 @@ def run_study(study, *, jobs=1, force=False, cluster=None):
     Returns
     -------
     summaries : list of dict
-        One per recording, with ``status`` "done", "unchanged" or "failed".
+        One per recording, with ``status`` "done", "unchanged" or "failed", and
+        ``unusable`` (the reason) for a recording that was read but cannot be used.
     """
     from .inputs import discover
     from .outputs import write_dataset_description, write_group_outputs
@@ -249,7 +266,7 @@ def check_study(study):
 
 
 def _check_one(study, recording):
-    from .harmonise import extract_markers, harmonised_names, missing_common
+    from .harmonise import check_units, extract_markers, harmonised_names, missing_common
     from .inputs import analysis_of
 
     import mne
@@ -270,6 +287,7 @@ def _check_one(study, recording):
     row["sampling_rate_hz"] = raw.info["sfreq"]
     try:
         markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, row["file"])
+        check_units(raw, row["file"], exclude=[c for c in raw.ch_names if c in site.eog_channels])
     except HeschlError as exc:
         row["error"] = str(exc)
         return row

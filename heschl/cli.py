@@ -20,7 +20,7 @@ log = logging.getLogger("heschl")
 
 EXIT_CODES = """exit codes:
   0  everything asked for was done
-  1  one or more recordings failed or could not be checked (the others were processed)
+  1  one or more recordings failed, were unusable or could not be checked (the others were processed)
   2  the command line or a definition file (study, paradigm, feature set) is invalid"""
 
 
@@ -100,16 +100,19 @@ def _print_run(study, summaries):
     done = sum(s["status"] == "done" for s in summaries)
     same = sum(s["status"] == "unchanged" for s in summaries)
     failed = [s for s in summaries if s["status"] == "failed"]
+    unusable = [s for s in summaries if s["status"] != "failed" and s.get("unusable")]
     redrawn = sum(bool(s.get("page_redrawn")) for s in summaries)
     print(f"{len(summaries)} recording(s): {done} processed, {same} already up to date"
           + (f" ({redrawn} page(s) drawn again for a new or changed sign-off)" if redrawn else "")
-          + f", {len(failed)} failed.")
+          + f", {len(failed)} failed" + (f", {len(unusable)} unusable (each has its page)" if unusable else "") + ".")
     for s in failed:
         print(f"  failed: {s['error']}")
+    for s in unusable:
+        print(f"  unusable: {s['file']} ({s['participant_id']} {s['paradigm']} at {s['site']}): {s['unusable']}")
     print(f"Outputs: {os.path.relpath(study.output)}")
     print(f"Study page: {os.path.relpath(study.output / 'group' / 'review.html')}")
     print(f"Recording pages: {os.path.relpath(study.output)}/sub-*/<eeg or meg>/*_review.html")
-    return 1 if failed or not summaries else 0
+    return 1 if failed or unusable or not summaries else 0
 
 
 def _parser():

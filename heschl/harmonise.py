@@ -192,6 +192,7 @@ def harmonise(raw, site, paradigm, common_channels, where):
     # The study's common channels are an EEG cap; an MEG site keeps its sensors (and any
     # EEG it records beside them) as they are.
     record["missing_channels"] = _pick_common(raw, common_channels if site.datatype == "eeg" else (), where)
+    record["amplitude_check"] = check_units(raw, where, exclude=[record["restored_reference"]])
     if len(_eeg_picks(raw)):
         _set_montage(raw, where)
     target = paradigm.cleaning.sampling_rate
@@ -207,6 +208,81 @@ def harmonise(raw, site, paradigm, common_channels, where):
     record["channel_types"] = dict(zip(record["channels"], types_of(raw.info, picks)))
     record["datatype"] = site.datatype
     return raw, markers, record
+
+
+#: Plausible robust amplitude (1.4826 x median absolute deviation, median over the
+#: channels of one type) of scalp signals band-passed 1-30 Hz: (low, high, unit factor,
+#: unit). EEG 0.1-500 uV (common practice: background EEG is tens of microvolts); MEG
+#: magnetometers 1 fT-100 pT and gradiometers 1 fT/cm-10 pT/cm (brain fields are tens to
+#: thousands of fT; Hämäläinen et al. 1993, from memory). A factor of 10^6 outside these is
+#: a unit mistake, not a recording. docs/REFERENCES.md F48.
+PLAUSIBLE_AMPLITUDE = {"eeg": (0.1e-6, 500e-6, 1e6, "uV"), "mag": (1e-15, 1e-10, 1e15, "fT"),
+                       "grad": (1e-13, 1e-9, 1e13, "fT/cm")}
+
+#: Seconds of data the unit check reads: this many 10 s slices spread over the recording.
+_UNIT_SLICES = 6
+
+
+def check_units(raw, where, exclude=()):
+    """Refuse data whose amplitude says the stored unit is not the declared one.
+
+    Parameters
+    ----------
+    raw : mne.io.BaseRaw
+        Preloaded, in SI units as the reader scaled them.
+    where : str
+        The file, for the message.
+    exclude : sequence of str
+        Channels left out (a restored reference channel of zeros).
+
+    Returns
+    -------
+    record : dict
+        Sensor type -> robust amplitude in the type's display unit.
+
+    Raises
+    ------
+    heschl.errors.InputDataError
+        When a sensor type's median robust amplitude lies outside `PLAUSIBLE_AMPLITUDE`.
+    """
+    import mne
+
+    from .vocabulary import MAD_TO_SD
+
+    sfreq, n = raw.info["sfreq"], raw.n_times
+    width = min(n, int(10 * sfreq))
+    starts = np.unique(np.linspace(0, n - width, _UNIT_SLICES).astype(int))
+    high = min(30.0, 0.45 * sfreq)
+    out = {}
+    for kind, (low_v, high_v, factor, unit) in PLAUSIBLE_AMPLITUDE.items():
+        picks = [i for i in mne.pick_types(raw.info, meg=kind if kind != "eeg" else False, eeg=kind == "eeg",
+                                           exclude="bads") if raw.ch_names[i] not in exclude]
+        if not picks or width < int(sfreq):
+            continue
+        x = np.concatenate([raw.get_data(picks=picks, start=a, stop=a + width) for a in starts], axis=1)
+        if not np.all(np.isfinite(x)):
+            x = np.nan_to_num(x)
+        x = mne.filter.filter_data(x.astype(float), sfreq, 1.0, high, verbose="error")
+        amp = float(np.median(MAD_TO_SD * np.median(np.abs(x - np.median(x, axis=1, keepdims=True)), axis=1)))
+        out[kind] = amp * factor
+        if low_v <= amp <= high_v:
+            continue
+        if amp == 0:
+            what, fix = "every channel is flat (zero)", "check the recording; the amplifier recorded nothing"
+        elif amp > high_v:
+            ratio = amp / high_v
+            what = (f"{kind.upper()} amplitude {amp * factor:.3g} {unit} (robust, 1-{high:g} Hz, median over "
+                    f"{len(picks)} channels) is {ratio:.2g}x above a plausible {high_v * factor:g} {unit}: "
+                    "the values look stored in microvolts (or femtotesla) where the file declares volts (tesla)")
+            fix = "re-export the file with its true unit in the header"
+        else:
+            ratio = low_v / amp
+            what = (f"{kind.upper()} amplitude {amp * factor:.3g} {unit} (robust, 1-{high:g} Hz, median over "
+                    f"{len(picks)} channels) is {ratio:.2g}x below a plausible {low_v * factor:g} {unit}: "
+                    "the values look stored in volts (tesla) where the file declares microvolts (femtotesla)")
+            fix = "re-export the file with its true unit in the header"
+        raise InputDataError(problem(where, what, fix))
+    return out
 
 
 def _check_datatype(raw, site, where):

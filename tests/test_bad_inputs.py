@@ -7,6 +7,7 @@ file and the fix), the exit code, that no output was written where none should b
 that the input files are unchanged.
 """
 import hashlib
+import json
 import shutil
 from pathlib import Path
 
@@ -87,3 +88,41 @@ def test_two_files_for_one_participant_and_paradigm_are_refused(study, capsys):
     code, _, err = _run(["check", str(study)], capsys)
     assert code == 2 and len(err.splitlines()) == 1
     assert "second oddball file" in err and "run-2" in err
+
+
+def _rescale(study, factor):
+    """Rewrite the study's FIF with its values multiplied by ``factor`` (a unit mistake)."""
+    import mne
+
+    path = next((study.parent / "raw" / "gen2lab").rglob("*_raw.fif"))
+    raw = mne.io.read_raw_fif(path, preload=True, verbose="error")
+    raw.apply_function(lambda x: x * factor, picks="eeg", channel_wise=False, verbose="error")
+    raw.save(path, overwrite=True, verbose="error")
+    return path
+
+
+@pytest.mark.parametrize("factor, words", [(1e6, "microvolts (or femtotesla) where the file declares volts"),
+                                           (1e-6, "volts (tesla) where the file declares microvolts")])
+def test_data_off_by_a_million_are_refused_with_the_likely_cause(study, capsys, factor, words):
+    # Before: a mismatch of -1.2 million uV (or -1e-6 uV) got the verdict "note".
+    # Limits: 0.1-500 uV robust EEG amplitude (common practice; docs/REFERENCES.md F48).
+    _rescale(study, factor)
+    before = _hashes(study.parent)
+    code, out, err = _run(["run", str(study)], capsys)
+    assert code == 1
+    (line,) = [x for x in out.splitlines() if x.strip().startswith("unusable:")]
+    assert words in line and "re-export" in line and "sub-G01_task-oddball_raw.fif" in line
+    out_dir = study.parent / "derivatives" / "heschl"
+    (features,) = out_dir.rglob("*_features.tsv")
+    assert len(features.read_text(encoding="utf-8").strip().splitlines()) == 1   # its header, no values
+    qc = json.loads(next(out_dir.rglob("*_qc.json")).read_text(encoding="utf-8"))
+    assert qc["verdict"] == "unusable" and words in qc["unusable"]["reason"]
+    assert _hashes(study.parent) == before
+
+
+def test_check_reports_the_unit_mistake_that_run_meets(study, capsys):
+    # One rule for check and run: what run refuses, check reports first.
+    _rescale(study, 1e6)
+    code, out, err = _run(["check", str(study)], capsys)
+    assert code == 1
+    assert "declares volts" in out + err and "sub-G01_task-oddball_raw.fif" in out + err

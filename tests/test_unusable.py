@@ -22,7 +22,7 @@ def half_broken(tmp_path_factory):
     root = tmp_path_factory.mktemp("half-broken")
     study = gen2.make_study(root, n_channels=32, sensor_noise=0.1, subjects=2, paradigms=("oddball",),
                             bad={"G01": ["flat"] * 10 + ["noisy"] * 6}, duration_s=60, seed=3)
-    assert main(["-q", "run", str(study)]) == 0
+    assert main(["-q", "run", str(study)]) == 1   # one recording unusable
     truth = json.loads((root / "truth.json").read_text(encoding="utf-8"))
     planted = {r["channel"] for rec in truth["recordings"].values() if rec["subject"] == "G01"
                for r in rec["bad_channels"]}
@@ -74,7 +74,7 @@ def test_the_study_lists_the_unusable_recording(half_broken):
 def test_an_unusable_recording_is_not_processed_again_when_nothing_changed(half_broken, tmp_path, capsys):
     output, _ = half_broken
     study = output.parent.parent / "study.toml"
-    assert main(["run", str(study)]) == 0
+    assert main(["run", str(study)]) == 1
     assert "2 already up to date" in capsys.readouterr().out
 
 
@@ -82,7 +82,7 @@ def test_a_recording_whose_rate_the_paradigm_cannot_meet_gets_a_page(tmp_path):
     # Harmonising stops (sampled below the analysis rate): the page shows the spectra as read.
     study = gen2.make_study(tmp_path, n_channels=32, subjects=1, paradigms=("oddball",), sfreq=200.0,
                             duration_s=30)
-    assert main(["-q", "run", str(study)]) == 0
+    assert main(["-q", "run", str(study)]) == 1   # one recording unusable
     folder = tmp_path / "derivatives" / "heschl" / "sub-G01" / "eeg"
     qc = json.loads((folder / "sub-G01_task-oddball_qc.json").read_text(encoding="utf-8"))
     assert qc["verdict"] == "unusable" and qc["unusable"]["stage"] == "harmonise"

@@ -266,20 +266,21 @@ def check_study(study):
 
 
 def _check_one(study, recording):
-    from .harmonise import check_units, extract_markers, harmonised_names, missing_common
+    from .harmonise import check_units, extract_markers, harmonised_names, missing_common, read_raw
     from .inputs import analysis_of
-
-    import mne
 
     site = study.sites[recording.site]
     paradigm = analysis_of(study, recording).paradigm
     row = {"site": recording.site, "participant_id": recording.participant_id, "paradigm": recording.paradigm,
            "file": os.path.relpath(recording.path), "error": None}
+    notes = []
     try:
-        raw = mne.io.read_raw(recording.path, preload=False, verbose="error")
-    except Exception as exc:  # the reader's own words, in one line
-        row["error"] = f"{row['file']}: cannot be read ({str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__})"
+        raw = read_raw(recording.path, notes=notes, preload=False)   # the run's reader, header only
+    except HeschlError as exc:
+        row["error"] = str(exc)
         return row
+    row["warnings"] = [f"truncated: holds {n['read_s']:.1f} s of the {n['declared_s']:.1f} s {n['basis']} declares"
+                       if n["kind"] == "truncated" else f"the reader says: {n['words']}" for n in notes]
     names = harmonised_names(raw.ch_names, site)
     row["channels"] = len(raw.ch_names)
     row["missing"] = missing_common(names, study.common_channels, site)

@@ -89,10 +89,14 @@ def _print_check(rows):
             missing = ", ".join(r["missing"]) or "none"
             print(f"{r['site']:8s} {r['participant_id']:10s} {r['paradigm']:11s} {r['channels']:3d} ch "
                   f"(missing: {missing}), {r['duration_s']:.1f} s at {r['sampling_rate_hz']:g} Hz; {counts}")
+        for w in r.get("warnings") or ():
+            print(f"  warning: {r['file']}: {w}")
         if r["error"]:
             failed += 1
             print(f"  problem: {r['error']}")
-    print(f"{len(rows)} recording(s) found, {failed} with problems.")
+    warned = sum(bool(r.get("warnings")) for r in rows)
+    print(f"{len(rows)} recording(s) found, {failed} with problems" + (f", {warned} with warnings" if warned else "")
+          + ".")
     return 1 if failed or not rows else 0
 
 

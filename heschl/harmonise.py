@@ -38,18 +38,26 @@ class Markers:
     unknown: dict = field(default_factory=dict)   # code in file -> count, codes the site map lacks
 
 
-def read_raw(path):
-    """Read any supported recording with mne's readers, preloaded, read-only.
+def read_raw(path, notes=None, preload=True):
+    """Read any supported recording with mne's readers, read-only.
 
     Parameters
     ----------
     path : path-like
         .vhdr, .edf, .bdf, .fif or .set file.
+    notes : list or None
+        When given, receives what the reader said about the file (see `reader_notes`):
+        its warnings in its own words, and how much of the file is missing when the file
+        holds less data than its header or markers declare.
+    preload : bool, default=True
+        Read the data into memory (False: the header only, for ``heschl check``).
 
     Returns
     -------
     raw : mne.io.BaseRaw
     """
+    import warnings
+
     import mne
 
     path = Path(path)
@@ -60,11 +68,69 @@ def read_raw(path):
     if not path.is_file():
         raise InputDataError(problem(path, "file not found", "check the site's file pattern in the study file"))
     try:
-        return mne.io.read_raw(path, preload=True, verbose="error")
+        with warnings.catch_warnings(record=True) as said:
+            warnings.simplefilter("always")
+            raw = mne.io.read_raw(path, preload=preload, verbose="warning")
     except Exception as exc:  # readers raise many kinds; the user needs one line
         text = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
         raise InputDataError(problem(path, f"cannot be read as {_READERS[suffix]} ({text})",
                                      "check that the file is complete and of the type its name says")) from None
+    if notes is not None:
+        notes.extend(reader_notes(path, raw, [str(w.message) for w in said]))
+    return raw
+
+
+def reader_notes(path, raw, words):
+    """What the reader said about a file, and whether the file holds all it declares.
+
+    Parameters
+    ----------
+    path : pathlib.Path
+    raw : mne.io.BaseRaw
+        As read.
+    words : list of str
+        The reader's warnings.
+
+    Returns
+    -------
+    notes : list of dict
+        ``{"kind": "reader", "words": str}`` per distinct warning, and at most one
+        ``{"kind": "truncated", "declared_s", "read_s", "missing_s", "basis"}`` when the
+        header (EDF/BDF: records x record duration) or the last marker (BrainVision)
+        declares more data than the file holds.
+    """
+    notes = [{"kind": "reader", "words": w.splitlines()[0]} for w in dict.fromkeys(words) if w.strip()]
+    read_s = raw.n_times / raw.info["sfreq"]
+    declared, basis = _declared_length(path, raw.info["sfreq"])
+    if declared is not None and declared > read_s + 1.0 / raw.info["sfreq"]:
+        notes.append({"kind": "truncated", "declared_s": round(float(declared), 3), "read_s": round(float(read_s), 3),
+                      "missing_s": round(float(declared - read_s), 3), "basis": basis})
+    return notes
+
+
+def _declared_length(path, sfreq):
+    """Seconds of data the file declares beyond what was read, and on what basis; (None, None)."""
+    import re
+
+    suffix = path.suffix.lower()
+    try:
+        if suffix in (".edf", ".bdf"):
+            with open(path, "rb") as fh:
+                head = fh.read(256)
+            records, duration = int(head[236:244].strip()), float(head[244:252].strip())
+            if records > 0 and duration > 0:
+                return records * duration, "its header's record count"
+        elif suffix == ".vhdr":
+            text = path.read_text(encoding="latin-1", errors="replace")
+            m = re.search(r"^MarkerFile=(.+)$", text, flags=re.M)
+            if m:
+                marks = (path.parent / m.group(1).strip()).read_text(encoding="latin-1", errors="replace")
+                positions = [int(p) for p in re.findall(r"^Mk\d+=[^,\n]*,[^,\n]*,(\d+)", marks, flags=re.M)]
+                if positions:
+                    return max(positions) / sfreq, "its last marker"
+    except (OSError, ValueError):
+        pass
+    return None, None
 
 
 def standard_montage():

@@ -68,13 +68,15 @@ def _process(study, recording, hashes):
     hashes = input_hashes(recording) if hashes is None else hashes
     definitions = definitions_of(study, recording)
     key = input_key(hashes, definitions)
-    raw = read_raw(recording.path)  # an unreadable file ends here, without a page
+    reader = []   # what the reader said about the file (warnings, truncation)
+    raw = read_raw(recording.path, notes=reader)  # an unreadable file ends here, without a page
     clock.lap("read")
     # What the stages found so far, for the page of a recording that turns out unusable.
     found = {"stage": "harmonise", "raw": raw, "harmonised": None, "cleaning": None, "spectra_before": None,
              "fmax": spectrum_limit(raw.info["sfreq"], site.line_frequency)}
     try:
         raw, markers, harmonised = harmonise(raw, site, paradigm, study.common_channels, where)
+        harmonised["reader_notes"] = reader
         found.update(raw=raw, harmonised=harmonised, stage="channels")
         analysis, skipped_sets = applicable(analysis, harmonised["channels"], where,
                                             set(harmonised["channel_types"].values()))

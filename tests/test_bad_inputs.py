@@ -126,3 +126,71 @@ def test_check_reports_the_unit_mistake_that_run_meets(study, capsys):
     code, out, err = _run(["check", str(study)], capsys)
     assert code == 1
     assert "declares volts" in out + err and "sub-G01_task-oddball_raw.fif" in out + err
+
+
+@pytest.fixture(scope="module")
+def synth_files(tmp_path_factory):
+    """heschl.synth's study (test size): its EDF (Birch) and BrainVision (Alder) writers."""
+    from heschl.synth import make_study
+
+    return make_study(tmp_path_factory.mktemp("synth"), size="test")
+
+
+def _only(study_file, keep, tmp_path):
+    """A copy of the synthetic study reduced to one oddball file (``keep``, relative)."""
+    root = tmp_path / "one"
+    src = study_file.parent
+    for rel in [keep] + ([keep.replace(".vhdr", ".vmrk"), keep.replace(".vhdr", ".eeg")] if keep.endswith(".vhdr")
+                         else []):
+        (root / rel).parent.mkdir(parents=True, exist_ok=True)
+        shutil.copy(src / rel, root / rel)
+    shutil.copy(src / "participants.tsv", root / "participants.tsv")
+    text = (src / "study.toml").read_text(encoding="utf-8")
+    site = keep.split("/")[1]
+    lines, section = [], None
+    for line in text.splitlines():
+        if line.startswith("["):
+            section = line
+        if section and section.startswith("[sites.") and not section.startswith((f"[sites.{site}]",
+                                                                                 f"[sites.{site}.")):
+            continue          # other sites go
+        if section and section.startswith(f"[sites.{site}.markers.") and "oddball" not in section:
+            continue          # and the other paradigms
+        if f"raw/{site}/" in line:
+            if "oddball" not in line:
+                continue
+            line = line.split("=")[0] + f'= "{keep}"'
+        lines.append(line)
+    text = "\n".join(lines) + "\n"
+    for other in ("clicktrain", "rest"):
+        text = text.replace(f'[[analyses]]\nparadigm = "{other}"\nfeature_sets = ["{other}-core"]\n', "")
+    (root / "study.toml").write_text(text, encoding="utf-8")
+    return root / "study.toml"
+
+
+def _truncate(path, share=0.9):
+    import os
+
+    size = os.path.getsize(path)
+    os.truncate(path, int(size * share) // 256 * 256)
+
+
+@pytest.mark.parametrize("keep, data, words", [
+    ("raw/birch/sub-B01/sub-B01_task-oddball_eeg.edf", ".edf", "Number of records from the header"),
+    ("raw/alder/sub-A01/sub-A01_task-oddball_eeg.vhdr", ".eeg", "outside data range")])
+def test_a_truncated_file_is_flagged_with_the_readers_words_and_what_is_missing(synth_files, tmp_path, capsys,
+                                                                                  keep, data, words):
+    # Before: mne's warnings were hidden (verbose="error") and a file cut to 90 % got the
+    # verdict of the intact one; markers past the end were dropped without a word.
+    study = _only(synth_files, keep, tmp_path)
+    _truncate(study.parent / keep.replace(Path(keep).suffix, data))
+    code, out, err = _run(["check", str(study)], capsys)
+    assert "warning:" in out and "truncated: holds" in out and words in out and "1 with warnings" in out
+    code, out, err = _run(["-q", "run", str(study)], capsys)
+    qc = json.loads(next((study.parent / "derivatives").rglob("*_qc.json")).read_text(encoding="utf-8"))
+    flags = {f["code"]: f for f in qc["flags"]}
+    assert flags["truncated-file"]["level"] == "caution" and qc["verdict"] in ("caution", "unusable")
+    assert "missing" in flags["truncated-file"]["message"]
+    share = float(flags["truncated-file"]["message"].split("(")[1].split("%")[0])
+    assert 5 <= share <= 15              # cut to 90 % of the bytes: about 10 % of the time
+    assert words in flags["reader-warning"]["message"]

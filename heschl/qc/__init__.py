@@ -44,7 +44,8 @@ def quality_record(recording, analysis, source, steps, rows, skipped_sets):
     ocular = ocular_record(cleaning, steps["rejection"], harmonised)
     found = (_flags.trial_flags(counts, limits) + _flags.channel_flags(channels, limits)
              + _flags.snr_flags(snrs, limits) + _flags.cleaning_flags(cleaning, limits, paradigm)
-             + _flags.input_flags(markers, harmonised["file_sampling_rate"], rows)
+             + _flags.input_flags(markers, harmonised["file_sampling_rate"], rows,
+                                 harmonised.get("reader_notes", ()))
              + _flags.inversion_flags(inversion, cleaning["reference"]) + _flags.ocular_flags(ocular, limits))
     return {
         **_identity(recording),

@@ -84,9 +84,19 @@ def cleaning_flags(cleaning, limits, paradigm):
     return flags
 
 
-def input_flags(markers, file_rate, rows):
-    """Unmapped marker codes, a low sampling rate, features that could not be computed."""
+def input_flags(markers, file_rate, rows, reader_notes=()):
+    """What the reader said about the file (a truncated file is a caution), unmapped
+    marker codes, a low sampling rate, features that could not be computed."""
     flags = []
+    for note in reader_notes:
+        if note["kind"] == "truncated":
+            share = note["missing_s"] / note["declared_s"]
+            flags.append(flag("caution", "truncated-file",
+                              f"the file holds {note['read_s']:.1f} s of the {note['declared_s']:.1f} s "
+                              f"{note['basis']} declares: {note['missing_s']:.1f} s ({share:.0%}) missing, and "
+                              "any markers there with it"))
+        else:
+            flags.append(flag("note", "reader-warning", f"the file's reader says: {note['words']}"))
     if markers.unknown:
         flags.append(flag("note", "unmapped-markers", "codes in the file not used by this paradigm: "
                           + ", ".join(f"{k} ({v})" for k, v in sorted(markers.unknown.items()))))

@@ -365,7 +365,8 @@ def _count(n, noun):
     return f"{n} {noun}{'' if n == 1 else 's'}"
 
 
-def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_frequency=None, watch=None):
+def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_frequency=None, watch=None,
+          stuck=None):
     """Line noise, pass band, bad channels (detect + interpolate), ocular correction,
     re-reference, on ``raw`` in place.
 
@@ -387,6 +388,10 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
         and after ("after-ocular", the fitted `OcularCorrection`) the ocular step, so
         :mod:`heschl.qc.evidence` can record what the step changed; it must not modify
         ``raw``. Nothing is decided differently with or without it.
+    stuck : dict or None
+        Runs of identical samples per channel found before resampling
+        (:func:`heschl.saturation.stuck_runs`); merged into stretches once the bad
+        channels are known (``record["saturation"]``).
 
     Returns
     -------
@@ -447,6 +452,10 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
 
         record["muscle"] = find_muscle(courses, paradigm.rejection.muscle_z, exclude=bads)
         del courses
+    if stuck is not None:
+        from .saturation import find_saturation
+
+        record["saturation"] = find_saturation(stuck, len(picks), exclude=bads, duration=raw.times[-1])
     log.info("%s interpolated%s", _count(len(bads), "bad channel"),
              (": " + ", ".join(f"{c} ({r})" for c, r in sorted(bads.items()))) if bads else "")
     method = ocular_method(raw, paradigm.cleaning.ocular)

@@ -261,6 +261,10 @@ def harmonise(raw, site, paradigm, common_channels, where):
     record["amplitude_check"] = check_units(raw, where, exclude=[record["restored_reference"]])
     if len(_eeg_picks(raw)):
         _set_montage(raw, where)
+    # Runs of identical samples, before resampling smears them (heschl.saturation).
+    from .saturation import stuck_runs
+
+    record["stuck_runs"] = stuck_runs(raw, data_picks(raw.info), exclude=[record["restored_reference"]])
     target = paradigm.cleaning.sampling_rate
     if abs(raw.info["sfreq"] - target) > 1e-9:
         if raw.info["sfreq"] < target:

@@ -88,7 +88,8 @@ def _process(study, recording, hashes):
         found.update(spectra_before=spectra_before, stage="clean")
         watch = OcularWatch()
         cleaning = clean(raw, paradigm, site.bad_channels.get(recording.participant_id, ()), where,
-                         restored=harmonised["restored_reference"], line_frequency=site.line_frequency, watch=watch)
+                         restored=harmonised["restored_reference"], line_frequency=site.line_frequency, watch=watch,
+                         stuck=harmonised.pop("stuck_runs", None))
         found.update(cleaning=cleaning, stage="segment and reject")
         spectra_after = channel_spectra(raw, fmax)
         clock.lap("clean")
@@ -190,7 +191,7 @@ def _segment_and_reject(raw, markers, paradigm, cleaning):
         copy = raw.copy().filter(paradigm.rejection.detection_high_pass, None, picks=picks, verbose="error")
         detection, _, _ = cut(copy, plan, window, picks)
         info = mne.pick_info(raw.info, picks)
-    dropped = _muscle_drops(entries, window, cleaning.get("muscle"), len(x))
+    dropped = _stretch_drops(entries, window, cleaning, len(x))
     data, entries, record = reject(x, times, entries, ch_names, paradigm, baseline, detection, info,
                                    types_of(raw.info, picks), dropped=dropped)
     ocular = cleaning.get("ocular") or {}
@@ -203,25 +204,42 @@ def _segment_and_reject(raw, markers, paradigm, cleaning):
     return data, times, entries, ch_names, record, counts
 
 
-def _muscle_drops(entries, window, muscle, n_cut):
-    """Per cut trial (``n_cut`` of them), the muscle reason that drops it, or None (see heschl.muscle)."""
+def _stretch_drops(entries, window, cleaning, n_cut):
+    """Per cut trial (``n_cut`` of them), the reason that drops it before rejection, or None:
+    a stretch where channels sit at one value (heschl.saturation), else a muscle burst
+    (heschl.muscle)."""
     from .muscle import overlapping
 
     dropped = [None] * n_cut
-    if not muscle or not muscle["stretches_s"]:
-        return dropped
-    lo, hi = muscle["band_hz"]
+    muscle, stuck = cleaning.get("muscle"), cleaning.get("saturation")
+    sources = []
+    if stuck and stuck["stretches_s"]:
+        names = {tuple(s): c for s, c in zip(stuck["stretches_s"], stuck["channels"])}
+        sources.append((stuck["stretches_s"], lambda hit: (
+            f"saturation: {_few(names.get(tuple(hit), []))} at one value from {hit[0]:.2f} to {hit[1]:.2f} s")))
+    if muscle and muscle["stretches_s"]:
+        lo, hi = muscle["band_hz"]
+        sources.append((muscle["stretches_s"], lambda hit: (
+            f"muscle: {lo:.4g}-{hi:.4g} Hz power above z {muscle['limit_z']:g} from {hit[0]:.2f} to {hit[1]:.2f} s")))
     for entry in entries:
         if entry.get("index") is None:
             continue
-        hit = overlapping(entry["onset_s"], window, muscle["stretches_s"])
-        if hit is not None:
-            dropped[entry["index"]] = (f"muscle: {lo:.4g}-{hi:.4g} Hz power above z {muscle['limit_z']:g} "
-                                       f"from {hit[0]:.2f} to {hit[1]:.2f} s")
+        for stretches, reason in sources:
+            hit = overlapping(entry["onset_s"], window, stretches)
+            if hit is not None:
+                dropped[entry["index"]] = reason(hit)
+                break
     n = sum(r is not None for r in dropped)
     if n:
-        log.info("Muscle stretches drop %d of %d trials before rejection", n, n_cut)
+        log.info("Saturation and muscle stretches drop %d of %d trials before rejection", n, n_cut)
     return dropped
+
+
+def _few(channels):
+    """"F3", "F3 and F4", "12 channels"."""
+    if len(channels) > 3:
+        return f"{len(channels)} channels"
+    return " and ".join(channels) or "channels"
 
 
 def package_versions():

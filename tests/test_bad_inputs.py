@@ -194,3 +194,62 @@ def test_a_truncated_file_is_flagged_with_the_readers_words_and_what_is_missing(
     share = float(flags["truncated-file"]["message"].split("(")[1].split("%")[0])
     assert 5 <= share <= 15              # cut to 90 % of the bytes: about 10 % of the time
     assert words in flags["reader-warning"]["message"]
+
+
+def test_mains_left_in_at_a_site_with_a_restored_reference_is_flagged(tmp_path, capsys):
+    # Before: the restored reference (a channel of zeros) made the residual line-noise
+    # ratio NaN for every recording, so 100 uV of 50 Hz with line_noise = "none" passed.
+    import mne
+    import numpy as np
+
+    study = gen2.make_study(tmp_path, n_channels=32, subjects=1, paradigms=("clicktrain",), size="test", seed=6,
+                            sfreq=250.0, duration_s=30.0, reference="Cz")
+    path = next((tmp_path / "raw").rglob("*_raw.fif"))
+    raw = mne.io.read_raw_fif(path, preload=True, verbose="error")
+    gains = np.random.default_rng(0).uniform(0.5, 1.5, (len(mne.pick_types(raw.info, eeg=True)), 1))
+    raw.apply_function(lambda x: x + 100e-6 * gains * np.sin(2 * np.pi * 50.0 * raw.times), picks="eeg",
+                       channel_wise=False, verbose="error")
+    raw.save(path, overwrite=True, verbose="error")
+    text = (Path(__file__).parents[1] / "paradigms" / "clicktrain.toml").read_text(encoding="utf-8")
+    (tmp_path / "clicktrain-keep-mains.toml").write_text(text.replace('line_noise = "notch"', 'line_noise = "none"'),
+                                                         encoding="utf-8")
+    study.write_text(study.read_text(encoding="utf-8").replace('paradigm = "clicktrain"',
+                                                               'paradigm = "clicktrain-keep-mains.toml"'),
+                     encoding="utf-8")
+    assert "Cz" not in mne.io.read_raw_fif(path, verbose="error").ch_names   # restored as zeros by heschl
+    main(["-q", "run", str(study)])
+    qc = json.loads(next(tmp_path.rglob("*_qc.json")).read_text(encoding="utf-8"))
+    flags = {f["code"]: f for f in qc["flags"]}
+    assert "line-noise" in flags and flags["line-noise"]["level"] == "caution", qc["flags"]
+    prov = json.loads(next(tmp_path.rglob("*_provenance.json")).read_text(encoding="utf-8"))
+    assert prov["steps"]["clean"]["line_noise"]["ratio_after"] > 3.0
+
+
+def test_a_saturated_stretch_drops_its_trials_with_that_reason(tiny, tmp_path, capsys):
+    # Before: 10 s with every channel stuck at one value passed; its epochs were kept.
+    import mne
+
+    shutil.copytree(tiny.parent, tmp_path / "s")
+    study = tmp_path / "s" / "study.toml"
+    path = next((tmp_path / "s" / "raw").rglob("*_raw.fif"))
+    raw = mne.io.read_raw_fif(path, preload=True, verbose="error")
+    eeg = mne.pick_types(raw.info, eeg=True)
+    a, b = (int(t * raw.info["sfreq"]) for t in (6.0, 11.0))
+    data = raw.get_data()
+    data[eeg, a:b] = data[eeg, a:a + 1]            # every channel held at its value at 6 s
+    raw._data[:] = data
+    raw.save(path, overwrite=True, verbose="error")
+    main(["-q", "run", str(study)])
+    out = tmp_path / "s" / "derivatives" / "heschl"
+    prov = json.loads(next(out.rglob("*_provenance.json")).read_text(encoding="utf-8"))
+    sat = prov["steps"]["clean"]["saturation"]
+    assert len(sat["stretches_s"]) == 1
+    start, stop = sat["stretches_s"][0]
+    assert abs(start - 6.0) < 0.02 and abs(stop - 11.0) < 0.02 and len(sat["channels"][0]) == len(eeg)
+    log = prov["steps"]["trial_log"]
+    inside = [e for e in log if 6.0 - 0.5 < e["onset_s"] < 11.0 + 0.1 and not (e["reason"] or "").startswith("skipped")]
+    assert inside and all(not e["kept"] and e["reason"].startswith("saturation") for e in inside), inside
+    qc = json.loads(next(out.rglob("*_qc.json")).read_text(encoding="utf-8"))
+    assert sum(t["reasons"].get("saturation", 0) for t in qc["trials"].values()) == len(inside)
+    page = next(out.rglob("*_review.html")).read_text(encoding="utf-8")
+    assert "saturation" in page

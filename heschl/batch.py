@@ -260,9 +260,11 @@ def check_study(study):
     rows : list of dict
         One per recording; ``error`` is set when the recording cannot be used as defined.
     """
-    from .inputs import discover
+    from .inputs import discover, empty_pattern_message, empty_patterns
 
-    return [_check_one(study, r) for r in discover(study)]
+    rows = [_check_one(study, r) for r in discover(study)]
+    return rows + [{"site": site, "participant_id": None, "paradigm": paradigm, "file": None,
+                    "error": empty_pattern_message(study, site, paradigm)} for site, paradigm in empty_patterns(study)]
 
 
 def _check_one(study, recording):

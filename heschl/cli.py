@@ -95,9 +95,10 @@ def _print_check(rows):
             failed += 1
             print(f"  problem: {r['error']}")
     warned = sum(bool(r.get("warnings")) for r in rows)
-    print(f"{len(rows)} recording(s) found, {failed} with problems" + (f", {warned} with warnings" if warned else "")
+    found = sum(r["file"] is not None for r in rows)
+    print(f"{found} recording(s) found, {failed} with problems" + (f", {warned} with warnings" if warned else "")
           + ".")
-    return 1 if failed or not rows else 0
+    return 1 if failed or not found else 0
 
 
 def _print_run(study, summaries):

@@ -320,10 +320,16 @@ def _measure(m, source, feature_set):
 
 
 def _evaluate(measures, source, feature_set):
+    from .errors import DefinitionError
+    from .inputs import display_path
+
     out = []
     for m in measures:
         try:
             out.append(_measure(m, source, feature_set))
+        except DefinitionError as exc:
+            # The definition asks for something the numeric code refuses: never a NaN.
+            raise DefinitionError(f"{display_path(feature_set.source)}: measure {m.name}: {exc}") from None
         except (ValueError, FloatingPointError, ZeroDivisionError):
             out.append(float("nan"))  # a resample can lack what a measure needs
     return np.asarray(out, dtype=float)

@@ -8,6 +8,7 @@ recording whose provenance names the current key is up to date.
 from __future__ import annotations
 
 import glob
+import logging
 import hashlib
 import json
 import os
@@ -17,6 +18,8 @@ from pathlib import Path
 
 from . import __version__
 from .errors import DefinitionError, InputDataError, did_you_mean, problem
+
+log = logging.getLogger(__name__)
 
 __all__ = ["Recording", "PIPELINE_REVISION", "read_participants", "discover", "recording_files",
            "input_hashes", "input_key", "analysis_of", "definitions_of", "display_path"]
@@ -94,7 +97,10 @@ def discover(study):
             pname = analysis.paradigm.name
             if pname not in site.files:
                 continue
-            for name in sorted(glob.glob(str(study.root / site.files[pname]))):
+            names = sorted(glob.glob(str(study.root / site.files[pname])))
+            if not names:
+                log.warning("%s", empty_pattern_message(study, site.name, pname))
+            for name in names:
                 path = Path(name)
                 match = pattern.search(path.name)
                 if match is None:
@@ -104,6 +110,19 @@ def discover(study):
                 found.append(Recording(site.name, pname, pid, groups.get(pid, "n/a"), path, site.datatype))
     _check_unique(found)
     return found
+
+
+def empty_pattern_message(study, site, paradigm):
+    """The one line for a site file pattern that finds no file."""
+    return problem(display_path(study.source), f'sites.{site}.files.{paradigm} = "{study.sites[site].files[paradigm]}" '
+                   f"matches no file under {display_path(study.root)}",
+                   "correct the pattern (relative to the study file's folder) or remove it")
+
+
+def empty_patterns(study):
+    """(site, paradigm) of every file pattern that finds no file."""
+    return [(site.name, a.paradigm.name) for site in study.sites.values() for a in study.analyses
+            if a.paradigm.name in site.files and not glob.glob(str(study.root / site.files[a.paradigm.name]))]
 
 
 def _check_unique(found):

@@ -253,3 +253,54 @@ def test_a_saturated_stretch_drops_its_trials_with_that_reason(tiny, tmp_path, c
     assert sum(t["reasons"].get("saturation", 0) for t in qc["trials"].values()) == len(inside)
     page = next(out.rglob("*_review.html")).read_text(encoding="utf-8")
     assert "saturation" in page
+
+
+def _local_feature_set(study, edit):
+    """Copy features/oddball-core.toml next to the study, edited by ``edit(text)``, and use it."""
+    text = (Path(__file__).parents[1] / "features" / "oddball-core.toml").read_text(encoding="utf-8")
+    (study.parent / "my-oddball.toml").write_text(edit(text), encoding="utf-8")
+    study.write_text(study.read_text(encoding="utf-8").replace('feature_sets = ["oddball-core"]',
+                                                               'feature_sets = ["my-oddball.toml"]'),
+                     encoding="utf-8")
+
+
+@pytest.mark.parametrize("edit, words", [
+    # Before: "FCzz" made the set look like an MEG set: "not applicable", exit 0.
+    (lambda t: t.replace('frontocentral = ["Fz", "FC1", "FC2", "FCz", "Cz"]',
+                         'frontocentral = ["Fz", "FC1", "FC2", "FCzz", "Cz"]'),
+     ['"FCzz" is neither a 10-05 electrode name', 'did you mean "FCz"']),
+    # Before: fraction = 1.0 passed the loader and became NaN "could not be computed".
+    (lambda t: t.replace("fraction = 0.5 ", "fraction = 1.0 "), ["fraction", "1 is out of range", "below 1"]),
+])
+def test_definition_mistakes_stop_check_and_run_with_one_line(study, capsys, edit, words):
+    _local_feature_set(study, edit)
+    for command in ("check", "run"):
+        code, _, err = _run([command, str(study)], capsys)
+        assert code == 2 and len(err.splitlines()) == 1 and "my-oddball.toml" in err, (command, err)
+        for w in words:
+            assert w in err, err
+    assert not (study.parent / "derivatives").exists()
+
+
+def test_a_band_above_nyquist_names_the_rate(tmp_path, capsys):
+    # Before: a band of 100-200 Hz at a 250 Hz analysis rate was measured and written.
+    from heschl.config import load_paradigm
+    from heschl.config.feature_set import load_feature_set
+    from heschl.errors import DefinitionError
+
+    root = Path(__file__).parents[1]
+    text = (root / "features" / "rest-core.toml").read_text(encoding="utf-8")
+    path = tmp_path / "rest-high.toml"
+    path.write_text(text.replace("[bands]", "[bands]\nultra = [100.0, 200.0]", 1)
+                    + '\n[[measures]]\nkind = "band-power"\nsignal = "eyes-open"\nregion = "posterior"\n'
+                    'band = "ultra"\n', encoding="utf-8")
+    with pytest.raises(DefinitionError, match="above the Nyquist frequency 125 Hz"):
+        load_feature_set(path, load_paradigm(root / "paradigms" / "rest.toml"))
+
+
+def test_a_file_pattern_that_matches_nothing_is_reported(study, capsys):
+    # Before: the site was skipped without a word.
+    study.write_text(study.read_text(encoding="utf-8").replace("sub-*_task-oddball_raw.fif",
+                                                               "sub-*_task-odball_raw.fif"), encoding="utf-8")
+    code, out, err = _run(["check", str(study)], capsys)
+    assert code == 1 and "matches no file" in out and "sites.gen2lab.files.oddball" in out

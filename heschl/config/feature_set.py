@@ -63,6 +63,7 @@ def load_feature_set(path, paradigm):
     region_table = top.sub("regions", set(top.table("regions", default={})), default={})
     for rname in region_table.data:
         regions[rname] = region_table.strings(rname)
+        _check_region_names(region_table, rname, regions[rname])
     bands, closures = {}, {}
     band_table = top.sub("bands", set(top.table("bands", default={})), default={})
     for bname in band_table.data:
@@ -98,6 +99,24 @@ def load_feature_set(path, paradigm):
                       document=doc)
 
 
+#: Names of MEG sensors (Neuromag "MEG0113" or "MEG 0113"; CTF "MLC11").
+_MEG_NAME = re.compile(r"^(MEG ?\d{3,4}|M[LRZ][A-Z]\d{2})$")
+
+
+def _check_region_names(table, rname, names):
+    """Every region channel is a 10-05 electrode or an MEG sensor name (else a typo)."""
+    from ..harmonise import standard_name_map
+
+    known = standard_name_map()
+    for name in names:
+        if name.upper() in known or _MEG_NAME.match(name):
+            continue
+        table.fail(rname, f'channel "{name}" is neither a 10-05 electrode name nor an MEG sensor name'
+                   f"{did_you_mean(name, sorted(set(known.values())))}",
+                   "correct the name (heschl renames each site's channels to 10-05 names; an MEG region names "
+                   "sensors such as MEG0113)")
+
+
 def _expand_measure(section, paradigm, regions, bands, spec, closures=None):
     kind = section.string("kind", choices=list(MEASURE_KINDS))
     required, optional, default_unit, units = MEASURE_KINDS[kind]
@@ -117,7 +136,8 @@ def _expand_measure(section, paradigm, regions, bands, spec, closures=None):
     if "polarity" in required:
         fixed["polarity"] = section.string("polarity", choices=POLARITIES)
     if "fraction" in optional:
-        fixed["fraction"] = section.number("fraction", default=0.5, low=0.0, high=1.0, strict_low=True)
+        fixed["fraction"] = section.number("fraction", default=0.5, low=0.0, high=1.0, strict_low=True,
+                                           strict_high=True)
     if "combine" in optional:
         fixed["combine"] = section.string("combine", default="mean", choices=COMBINES)
         if fixed["combine"] == "rms" and fixed.get("polarity") == "negative":
@@ -142,6 +162,8 @@ def _expand_measure(section, paradigm, regions, bands, spec, closures=None):
         if band is not None and band not in bands:
             section.fail("band", f'"{band}" is not defined under [bands]{did_you_mean(band, bands)}',
                          f"define it under [bands] or use one of: {', '.join(bands) or 'none yet'}")
+        if band is not None:
+            _check_band(section, band, bands[band], paradigm)
     explicit = section.string("name", default=None)
     if explicit is not None and len(signals) * len(band_names) > 1:
         section.fail("name", "one name for a measure that expands over several signals or bands",
@@ -173,6 +195,21 @@ def _check_design(section, kind, paradigm):
     if kind in _SPECTRUM_KINDS and paradigm.segments is None:
         section.fail("kind", f'"{kind}" needs a resting paradigm but "{paradigm.name}" is {paradigm.design}',
                      "use an epoch kind (mean-amplitude, itpc, ...) for this paradigm")
+
+
+def _check_band(section, name, band, paradigm):
+    """A band must lie below the analysis Nyquist frequency and meet the pass band."""
+    lo, hi = band
+    nyquist = paradigm.cleaning.sampling_rate / 2
+    pass_lo, pass_hi = paradigm.cleaning.pass_band
+    if hi > nyquist:
+        section.fail("band", f'band "{name}" [{_num(lo)}, {_num(hi)}] Hz reaches above the Nyquist frequency '
+                     f"{_num(nyquist)} Hz of paradigm \"{paradigm.name}\" (analysis rate {_num(2 * nyquist)} Hz)",
+                     "lower the band's upper edge or raise the paradigm's cleaning.sampling_rate")
+    if hi <= pass_lo or lo >= pass_hi:
+        section.fail("band", f'band "{name}" [{_num(lo)}, {_num(hi)}] Hz lies outside the pass band '
+                     f"[{_num(pass_lo)}, {_num(pass_hi)}] Hz of paradigm \"{paradigm.name}\"",
+                     "choose a band inside the pass band or widen the paradigm's cleaning.pass_band")
 
 
 def _measure_window(section, paradigm):

@@ -49,13 +49,13 @@ class _Section:
                       f"use one of: {', '.join(choices)}")
         return value
 
-    def number(self, key, default=_REQUIRED, unit="", low=None, high=None, strict_low=False):
+    def number(self, key, default=_REQUIRED, unit="", low=None, high=None, strict_low=False, strict_high=False):
         value = self.raw(key, default)
         if value is default and default is not _REQUIRED:
             return value
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
             self.fail(key, f"expected a number{_in(unit)}, got {_show(value)}", "write a plain number")
-        _check_range(self, key, float(value), unit, low, high, strict_low)
+        _check_range(self, key, float(value), unit, low, high, strict_low, strict_high)
         return float(value)
 
     def integer(self, key, default=_REQUIRED, low=None):
@@ -116,12 +116,13 @@ class _Section:
         return _Section(value, self.where, self.key(key), known)
 
 
-def _check_range(section, key, value, unit, low, high, strict_low):
+def _check_range(section, key, value, unit, low, high, strict_low, strict_high=False):
     if low is not None and (value < low or (strict_low and value == low)):
         word = "above" if strict_low else "at least"
         section.fail(key, f"{_num(value)}{_sp(unit)} is out of range", f"use a value {word} {_num(low)}{_sp(unit)}")
-    if high is not None and value > high:
-        section.fail(key, f"{_num(value)}{_sp(unit)} is out of range", f"use a value of at most {_num(high)}{_sp(unit)}")
+    if high is not None and (value > high or (strict_high and value == high)):
+        word = "below" if strict_high else "of at most"
+        section.fail(key, f"{_num(value)}{_sp(unit)} is out of range", f"use a value {word} {_num(high)}{_sp(unit)}")
 
 
 def _show(value):

@@ -22,12 +22,34 @@ log = logging.getLogger(__name__)
 
 
 def _limit_threads():
-    """One BLAS thread per worker: parallelism is over recordings."""
+    """Worker set-up: one BLAS thread (parallelism is over recordings), and an end when the
+    parent process is gone (a killed ``heschl run`` must not leave workers writing)."""
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ[var] = "1"
     from threadpoolctl import threadpool_limits
 
     threadpool_limits(1)
+    _watch_parent()
+
+
+#: Seconds between a worker's looks at its parent process.
+PARENT_POLL_S = 0.5
+
+
+def _watch_parent():
+    """Exit this process soon after its parent dies (checked from a daemon thread)."""
+    import threading
+    import time
+
+    parent = os.getppid()
+
+    def watch():
+        while True:
+            time.sleep(PARENT_POLL_S)
+            if os.getppid() != parent:      # re-parented: the run that started us is gone
+                os._exit(1)
+
+    threading.Thread(target=watch, name="heschl-parent-watch", daemon=True).start()
 
 
 def up_to_date(study, recording, hashes):
@@ -60,33 +82,44 @@ def process_and_write(study, recording, force=False, decision=None):
 
     Never raises for a problem with the recording: the error becomes part of the summary.
     """
-    from .inputs import display_path, input_hashes
-    from .outputs import write_recording
-    from .pipeline import process_recording
-    from .signoff import signoff_for
+    from threadpoolctl import threadpool_limits
 
     summary = {"site": recording.site, "participant_id": recording.participant_id,
                "paradigm": recording.paradigm, "group": recording.group, "status": "done", "error": None}
     try:
-        hashes = input_hashes(recording)  # read once: for the resume check and for provenance
-        if not force and up_to_date(study, recording, hashes):
-            summary["status"] = "unchanged"
-            summary["page_redrawn"] = _refresh_page(study, recording, decision)
-            summary["unusable"] = _stored_unusable(study, recording)
-            summary["file"] = display_path(recording.path)
-            return summary
-        result = process_recording(study, recording, hashes)
-        signoff = signoff_for(study, recording, decision, result["provenance"]["key"])
-        write_recording(study.output, recording, result, lambda recorded: _page(recording, recorded, signoff))
-        summary["verdict"] = result["qc"]["verdict"]
-        if result["qc"].get("unusable"):
-            summary["unusable"] = result["qc"]["unusable"]["reason"]
-            summary["file"] = display_path(recording.path)
+        with threadpool_limits(1):
+            # One BLAS thread in every mode (serial, pool, Dask): the same sums in the same
+            # order give the same digits whatever --jobs is.
+            return _process_and_write(study, recording, force, decision, summary)
     except HeschlError as exc:
         summary.update(status="failed", error=str(exc))
     except Exception as exc:  # one recording never stops the study; the reason is kept
         log.debug("unexpected failure", exc_info=True)
         summary.update(status="failed", error=f"{recording.path.name}: {exc.__class__.__name__}: {exc}")
+    return summary
+
+
+def _process_and_write(study, recording, force, decision, summary):
+    """The work of `process_and_write`; raises for a problem with the recording."""
+    from .inputs import display_path, input_hashes
+    from .outputs import write_recording
+    from .pipeline import process_recording
+    from .signoff import signoff_for
+
+    hashes = input_hashes(recording)  # read once: for the resume check and for provenance
+    if not force and up_to_date(study, recording, hashes):
+        summary["status"] = "unchanged"
+        summary["page_redrawn"] = _refresh_page(study, recording, decision)
+        summary["unusable"] = _stored_unusable(study, recording)
+        summary["file"] = display_path(recording.path)
+        return summary
+    result = process_recording(study, recording, hashes)
+    signoff = signoff_for(study, recording, decision, result["provenance"]["key"])
+    write_recording(study.output, recording, result, lambda recorded: _page(recording, recorded, signoff))
+    summary["verdict"] = result["qc"]["verdict"]
+    if result["qc"].get("unusable"):
+        summary["unusable"] = result["qc"]["unusable"]["reason"]
+        summary["file"] = display_path(recording.path)
     return summary
 
 

@@ -11,6 +11,7 @@ __all__ = [
     "HeschlError",
     "DefinitionError",
     "InputDataError",
+    "OutputError",
     "ProcessingError",
     "UnusableRecording",
     "problem",
@@ -42,6 +43,10 @@ class UnusableRecording(InputDataError):
         super().__init__(message)
         self.stage = stage
         self.record = record or {}
+
+
+class OutputError(HeschlError, OSError):
+    """An output file or folder cannot be written (full disk, permissions, a file in the way)."""
 
 
 class ProcessingError(HeschlError, RuntimeError):

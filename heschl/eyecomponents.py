@@ -43,7 +43,7 @@ import re
 
 import numpy as np
 
-__all__ = ["LIMITS", "component_properties", "ocular_kind", "mirror_pairs", "channel_groups", "virtual_eog"]
+__all__ = ["LIMITS", "TIME_COURSE", "component_properties", "ocular_course", "ocular_kind", "mirror_pairs", "channel_groups", "virtual_eog"]
 
 #: Limits of each property, per kind of ocular component: ("min", x) means at least x,
 #: ("max", x) at most x. Chosen on tests/gen2, which makes blinks and horizontal movements,
@@ -226,6 +226,22 @@ def component_properties(patterns, sources, names, sfreq, data=None, high_pass=1
             "kurtosis": float(kurt[k]),
         })
     return out
+
+
+#: The properties of a component's time course (used with a recorded EOG too).
+TIME_COURSE = ("low", "kurtosis")
+
+
+def ocular_course(props, limits=LIMITS):
+    """True when the time course alone is ocular for some kind: slow and heavy-tailed.
+
+    With a recorded EOG, a component correlated with it is removed only if this holds
+    too: an EOG channel also records brain activity, and a brain component can correlate
+    with it (on heschl.synth's Cedar, without any eye artefact, one correlated -0.69 with
+    the HEOG).
+    """
+    return any(all(_meets(props[key], *rules[key]) for key in TIME_COURSE if key in rules)
+               for rules in limits.values())
 
 
 def ocular_kind(props, limits=LIMITS):

@@ -75,7 +75,8 @@ class OcularCorrection:
         Upper limit on the number of ICA components (also limited by the data's rank).
     threshold : float, default=0.5
         With an EOG channel, a component whose absolute correlation with any EOG source
-        exceeds this is removed.
+        exceeds this is removed, if its time course is also slow and heavy-tailed
+        (:func:`heschl.eyecomponents.ocular_course`).
     limits : dict or None, default=None
         Limits of the component properties used without an EOG channel; None means
         :data:`heschl.eyecomponents.LIMITS`.
@@ -132,7 +133,7 @@ class OcularCorrection:
         also adds ``"properties"``: the component's properties).
     component_properties_ : list of dict or None
         The properties (:func:`heschl.eyecomponents.component_properties`) of every ICA
-        component when chosen by properties.
+        component (for ``"ica"``).
     component_correlations_ : ndarray, shape (n_components, n_sources), or None
         Signed correlation of every ICA component with every EOG source (for ``"ica"``),
         on the data it was fitted on; the QC page draws it.
@@ -307,8 +308,7 @@ class OcularCorrection:
             rec["ica"] = {"n_components": int(self.n_components_), "converged": bool(self.ica_converged_),
                           "fit_decim": int(self.fit_decim_),
                           "selection": self.selection_, "threshold": float(self.threshold),
-                          "limits": ({k: {p: list(v) for p, v in rules.items()} for k, rules in self._limits().items()}
-                                     if self.selection_ == "properties" else None),
+                          "limits": {k: {p: list(v) for p, v in rules.items()} for k, rules in self._limits().items()},
                           "excluded": [dict(e, properties=dict(e["properties"])) if "properties" in e else dict(e)
                                        for e in self.excluded_],
                           "properties": ([dict(p) for p in self.component_properties_]
@@ -411,16 +411,15 @@ class OcularCorrection:
         if not self.ica_converged_:
             # Common with the near-Gaussian background components; recorded, not warned.
             log.info("FastICA stopped after %d iterations without converging", _MAX_ITER)
+        from .eyecomponents import component_properties, ocular_course, ocular_kind
+
         courses = ica.get_sources(hp).get_data()
         r = _correlations(courses, src)
         self.component_correlations_ = r
+        self.component_properties_ = component_properties(ica.get_components(), courses, eeg, hp.info["sfreq"],
+                                                          data=hp.get_data(picks=eeg), high_pass=self.high_pass)
         if self.stand_ins_used_:
-            from .eyecomponents import component_properties, ocular_kind
-
             self.selection_ = "properties"
-            self.component_properties_ = component_properties(ica.get_components(), courses, eeg,
-                                                              hp.info["sfreq"], data=hp.get_data(picks=eeg),
-                                                              high_pass=self.high_pass)
             for k, props in enumerate(self.component_properties_):
                 kind = ocular_kind(props, self._limits())
                 if kind:
@@ -431,10 +430,11 @@ class OcularCorrection:
             self.selection_ = "eog-correlation"
             for k, row in enumerate(r):
                 j = int(np.abs(row).argmax())
-                if abs(row[j]) > self.threshold:
+                if abs(row[j]) > self.threshold and ocular_course(self.component_properties_[k], self._limits()):
                     self.excluded_.append({"component": k, "kind": "eog", "correlation": float(row[j]),
-                                           "source": self.source_labels_[j]})
-            rule = f"|r| > {self.threshold:g} with {', '.join(self.source_labels_)}"
+                                           "source": self.source_labels_[j],
+                                           "properties": self.component_properties_[k]})
+            rule = (f"|r| > {self.threshold:g} with {', '.join(self.source_labels_)}, slow and heavy-tailed")
         ica.exclude = [e["component"] for e in self.excluded_]
         self.ica_ = ica
         log.info("ICA: removed %d of %d components (%s)", len(self.excluded_), self.n_components_, rule)

@@ -13,11 +13,13 @@ from pathlib import Path
 
 from . import __version__
 from .config.feature_set import MEASURE_KINDS
+from .errors import OutputError, problem
+from .inputs import display_path
 from .vocabulary import AMPLITUDE_UNITS, POWER_UNITS
 
 log = logging.getLogger(__name__)
 
-__all__ = ["write_atomic", "recording_paths", "write_recording", "read_recording", "read_rows",
+__all__ = ["write_atomic", "output_folder", "check_space", "recording_paths", "write_recording", "read_recording", "read_rows",
            "write_dataset_description",
            "write_group", "write_group_outputs", "FEATURE_COLUMNS", "FEATURE_SIDECAR"]
 
@@ -60,17 +62,78 @@ FEATURE_SIDECAR = {
 
 
 def write_atomic(path, data):
-    """Write text or bytes to ``path`` through a temporary file and a rename."""
+    """Write text or bytes to ``path`` through a temporary file and a rename.
+
+    A failed write (a full disk, a folder without write permission) removes its temporary
+    file and raises :class:`heschl.errors.OutputError` with one line naming the file.
+    """
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
     tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}")
     mode = "wb" if isinstance(data, bytes) else "w"
-    with open(tmp, mode, **({} if mode == "wb" else {"encoding": "utf-8", "newline": "\n"})) as fh:
-        fh.write(data)
-        fh.flush()
-        os.fsync(fh.fileno())
-    os.replace(tmp, path)
+    output_folder(path.parent)
+    try:
+        with open(tmp, mode, **({} if mode == "wb" else {"encoding": "utf-8", "newline": "\n"})) as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except OSError as exc:
+        _remove(tmp)
+        raise _output_error(path, exc) from None
+    except BaseException:
+        _remove(tmp)
+        raise
     return path
+
+
+def _remove(path):
+    """Delete a file if it is there; never raises (a failed write is being cleaned up)."""
+    try:
+        Path(path).unlink(missing_ok=True)
+    except OSError:
+        pass
+
+
+def output_folder(folder):
+    """Create ``folder`` (and its parents), or raise a one-line :class:`OutputError`."""
+    folder = Path(folder)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except (FileExistsError, NotADirectoryError):
+        blocker = next((p for p in [folder, *folder.parents] if p.exists() and not p.is_dir()), folder)
+        raise OutputError(problem(display_path(folder), f"cannot be made a folder: {display_path(blocker)} is a file",
+                                  "choose another output folder in the study file, or move the file away")) from None
+    except OSError as exc:
+        raise _output_error(folder, exc) from None
+    return folder
+
+
+def _output_error(path, exc):
+    import errno
+
+    if exc.errno == errno.ENOSPC:
+        what, fix = "cannot be written: the disk is full", "free disk space (or choose another output folder) and run again"
+    elif exc.errno in (errno.EACCES, errno.EPERM, errno.EROFS):
+        what, fix = "cannot be written: permission denied", "choose an output folder you may write to"
+    else:
+        what, fix = f"cannot be written ({exc.strerror or exc.__class__.__name__})", "check the output folder"
+    return OutputError(problem(display_path(path), what, fix))
+
+
+#: Free space, bytes, kept on top of what a recording's outputs need (HDF5 can crash the
+#: process rather than raise when the disk fills during a write).
+_SPACE_MARGIN = 64 * 2 ** 20
+
+
+def check_space(folder, needed):
+    """Raise `OutputError` when ``folder``'s disk has less than ``needed`` bytes plus a margin."""
+    import shutil
+
+    free = shutil.disk_usage(output_folder(folder)).free
+    if free < needed + _SPACE_MARGIN:
+        raise OutputError(problem(display_path(folder), f"only {free / 2 ** 20:.0f} MB free and this recording's "
+                                  f"outputs need about {(needed + _SPACE_MARGIN) / 2 ** 20:.0f} MB",
+                                  "free disk space (or choose another output folder) and run again"))
 
 
 def _json(obj):
@@ -137,20 +200,37 @@ def write_recording(output, recording, result, render_page):
     from .arrays import ARRAY_SUFFIXES, write_netcdf
 
     paths = recording_paths(output, recording)
+    folder = paths["features"].parent
+    texts = {name: _json(_finite(result[name])) for name in ("qc", "evidence")}
+    arrays = result.get("arrays", {})
+    check_space(folder, 2 * sum(int(d.nbytes) for d in arrays.values()) + sum(len(t) for t in texts.values()))
+    # The old provenance goes first: until the new one is written last, the recording is
+    # incomplete and a rerun processes it again (all outputs or none).
+    paths["provenance"].unlink(missing_ok=True)
     written = []
-    for name, dataset in result.get("arrays", {}).items():
-        written.append(write_netcdf(paths["features"].parent / f"{recording.stem}_desc-{name}_{ARRAY_SUFFIXES[name]}.nc",
-                                    dataset).name)
-    result["provenance"]["arrays"] = written
-    write_atomic(paths["features"], features_tsv(result["rows"]))
-    write_atomic(paths["features_json"], _json(FEATURE_SIDECAR))
-    texts = {name: _json(_finite(result[name])) for name in ("qc", "evidence", "provenance")}
-    write_atomic(paths["qc"], texts["qc"])
-    write_atomic(paths["evidence"], texts["evidence"])
-    recorded = {name: json.loads(text) for name, text in texts.items()}
-    recorded["rows"] = read_rows(paths["features"])
-    write_atomic(paths["page"], render_page(recorded))
-    write_atomic(paths["provenance"], texts["provenance"])
+    try:
+        for name, dataset in arrays.items():
+            target = folder / f"{recording.stem}_desc-{name}_{ARRAY_SUFFIXES[name]}.nc"
+            try:
+                written.append(write_netcdf(target, dataset).name)
+            except OSError as exc:
+                raise _output_error(target, exc) from None
+        result["provenance"]["arrays"] = written
+        texts["provenance"] = _json(_finite(result["provenance"]))
+        write_atomic(paths["features"], features_tsv(result["rows"]))
+        write_atomic(paths["features_json"], _json(FEATURE_SIDECAR))
+        write_atomic(paths["qc"], texts["qc"])
+        write_atomic(paths["evidence"], texts["evidence"])
+        recorded = {name: json.loads(text) for name, text in texts.items()}
+        recorded["rows"] = read_rows(paths["features"])
+        write_atomic(paths["page"], render_page(recorded))
+        write_atomic(paths["provenance"], texts["provenance"])
+    except BaseException:
+        for name in written:
+            _remove(folder / name)
+        for key in ("features", "features_json", "qc", "evidence", "page"):
+            _remove(paths[key])
+        raise
     return paths
 
 

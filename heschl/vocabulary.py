@@ -33,8 +33,8 @@ LINE_NOISE_METHODS = ("notch", "fit", "none")
 #: Ways to correct ocular artefacts (:class:`heschl.ocular.OcularCorrection`).
 OCULAR_METHODS = ("regression", "ica", "none")
 
-#: What a paradigm's ``cleaning.ocular`` may ask for: a method, or "auto" (regression when
-#: the recording has EOG channels, nothing otherwise).
+#: What a paradigm's ``cleaning.ocular`` may ask for: a method, or "auto" (ICA: components
+#: chosen by correlation with the EOG where recorded, by their properties where not).
 OCULAR_POLICIES = ("auto",) + OCULAR_METHODS
 
 #: ``cleaning.bad_channels``: detect bad channels, or keep every channel.

@@ -304,3 +304,60 @@ def test_a_file_pattern_that_matches_nothing_is_reported(study, capsys):
                                                                "sub-*_task-odball_raw.fif"), encoding="utf-8")
     code, out, err = _run(["check", str(study)], capsys)
     assert code == 1 and "matches no file" in out and "sites.gen2lab.files.oddball" in out
+
+
+def _leftovers(root):
+    """Temporary files and outputs of the tiny study's recording, if any."""
+    return sorted(p.name for p in Path(root).rglob("*") if p.is_file() and (".tmp-" in p.name or "task-" in p.name)
+                  and "derivatives" in p.parts)
+
+
+def test_an_output_folder_under_a_file_is_one_line(study, capsys):
+    # Before: a raw FileExistsError / NotADirectoryError traceback.
+    (study.parent / "blocker").write_text("not a folder", encoding="utf-8")
+    study.write_text(study.read_text(encoding="utf-8").replace('output = "derivatives/heschl"',
+                                                               'output = "blocker/heschl"'), encoding="utf-8")
+    code, out, err = _run(["run", str(study)], capsys)
+    assert code == 1 and len(err.splitlines()) == 1 and "Traceback" not in err
+    assert "cannot be made a folder" in err and "blocker is a file" in err
+
+
+def test_a_full_disk_fails_the_recording_in_one_line_and_leaves_nothing(study, capsys, monkeypatch):
+    # Before: the NetCDF writer crashed the process (exit 139) or a traceback left a
+    # temporary file. Simulated: the disk reports 1 MB free.
+    import collections
+    import shutil as sh
+
+    usage = collections.namedtuple("usage", "total used free")
+    monkeypatch.setattr(sh, "disk_usage", lambda path: usage(2 ** 30, 2 ** 30 - 2 ** 20, 2 ** 20))
+    code, out, err = _run(["-q", "run", str(study)], capsys)
+    assert code == 1
+    (line,) = [x for x in out.splitlines() if x.strip().startswith("failed:")]
+    assert "only 1 MB free" in line and "free disk space" in line
+    assert _leftovers(study.parent) == []
+
+
+def test_a_write_that_hits_a_full_disk_removes_what_it_wrote(study, capsys, monkeypatch):
+    # The disk fills while the outputs are written (ENOSPC from the file system): the
+    # recording fails in one line and none of its outputs nor a temporary file is left.
+    import errno
+    import os as _os
+
+    import heschl.outputs as outputs
+
+    real = _os.fsync
+
+    def full(fd):
+        # The recording's own feature table, after its arrays were written (Linux: the
+        # file behind a descriptor is named in /proc/self/fd).
+        name = _os.readlink(f"/proc/self/fd/{fd}")
+        if "_features.tsv" in name and "group" not in name:
+            raise OSError(errno.ENOSPC, "No space left on device")
+        return real(fd)
+
+    monkeypatch.setattr(outputs.os, "fsync", full)
+    code, out, err = _run(["-q", "run", str(study)], capsys)
+    assert code == 1
+    (line,) = [x for x in out.splitlines() if x.strip().startswith("failed:")]
+    assert "the disk is full" in line
+    assert _leftovers(study.parent) == []

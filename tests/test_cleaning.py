@@ -74,12 +74,16 @@ def test_channels_forced_bad_in_the_study_are_interpolated_with_that_reason():
     assert record["interpolated"] == ["O2"]
 
 
-def test_ocular_auto_uses_regression_with_eog_and_says_why_without():
+def test_ocular_auto_is_ica_with_or_without_eog():
+    # The default follows benchmarks/ocular_eval.py (DEVELOPERS.md): ICA, its components
+    # chosen by EOG correlation where an EOG exists and by their properties where not.
     x = _brain(seed=4)
-    assert ocular_method(_raw(x, eog=("VEOG", x[0])), "auto") == "regression"
-    assert ocular_method(_raw(x), "auto") == "none"
+    assert ocular_method(_raw(x, eog=("VEOG", x[0])), "auto") == "ica"
+    assert ocular_method(_raw(x), "auto") == "ica"
+    assert ocular_method(_raw(x), "regression") == "regression"
     record = clean(_raw(x), _paradigm(ocular="auto", line_noise="none"), where="x.fif")
-    assert record["ocular"]["policy"] == "auto" and "no EOG channel" in record["ocular"]["skipped_reason"]
+    assert record["ocular"]["policy"] == "auto" and record["ocular"]["method"] == "ica"
+    assert record["ocular"]["ica"]["selection"] == "properties"
 
 
 def test_line_noise_is_removed_and_measured():

@@ -140,7 +140,9 @@ def test_ica_removes_one_blink_component(fitted):
     # on the near-Gaussian rest, which is recorded, not required.
     rec = fitted["ica"].record()["ica"]
     assert isinstance(rec["converged"], bool) and rec["selection"] == "eog-correlation"
-    assert rec["n_components"] == 15 and rec["properties"] is None and rec["limits"] is None
+    assert rec["n_components"] == 15 and len(rec["properties"]) == 15
+    # Removed only with a slow, heavy-tailed time course as well (heschl.eyecomponents).
+    assert rec["excluded"][0]["properties"]["kurtosis"] >= 5.0
     assert len(rec["excluded"]) == 1 and rec["excluded"][0]["kind"] == "eog"
     assert rec["excluded"][0]["source"] == "VEOG" and abs(rec["excluded"][0]["correlation"]) > 0.9
     assert fitted["ica"].ica_.exclude == [rec["excluded"][0]["component"]]

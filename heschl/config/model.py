@@ -30,7 +30,7 @@ class Cleaning:
     reference: object             # "average" | "linked-mastoids" | "as-recorded" | tuple of channel names
     bad_channels: str             # "detect" | "keep"
     line_noise: str = "notch"     # "notch" | "fit" | "none"
-    ocular: str = "none"          # "auto" | "regression" | "ica" | "none"
+    ocular: str = "auto"          # "auto" (ICA) | "regression" | "ica" | "none"
 
 
 @dataclass(frozen=True)

@@ -97,7 +97,7 @@ def _cleaning(top):
         ref = (ref,)
     policy = section.string("bad_channels", default="detect", choices=BAD_CHANNEL_POLICIES)
     line = section.string("line_noise", default="notch", choices=LINE_NOISE_METHODS)
-    ocular = section.string("ocular", default="none", choices=OCULAR_POLICIES)
+    ocular = section.string("ocular", default="auto", choices=OCULAR_POLICIES)
     return Cleaning(rate, band, ref, policy, line, ocular)
 
 

@@ -417,8 +417,11 @@ def _ocular_section(evidence):
                      f"{len(ica['excluded'])} of {len(ica['properties'])} removed.")
     elif ica:
         figures.append(_figure("ica", "ICA components and the eye signal", figure_components(ica),
-                               "Components above the dashed threshold were removed. Look for one or two clear "
-                               "ocular components; many removed components mean brain signal went with them."))
+                               "Components above the dashed threshold were removed when their time course was "
+                               "also slow and heavy-tailed (table). Look for one or two clear ocular components; "
+                               "many removed components mean brain signal went with them."))
+        if ica.get("properties"):
+            table = _component_table(ica)
     if ocular.get("regression"):
         figures.append(_figure("weights", "Regression weights", figure_weights(ocular["regression"]),
                                "Fraction of the EOG subtracted from each channel. Expect the largest weights "

@@ -36,12 +36,18 @@ def _limit_threads():
 PARENT_POLL_S = 0.5
 
 
+_WATCHING = []
+
+
 def _watch_parent():
-    """Exit this process soon after its parent dies (checked from a daemon thread)."""
+    """Exit this process soon after its parent dies (checked from a daemon thread, once)."""
     import threading
     import time
 
+    if _WATCHING:
+        return
     parent = os.getppid()
+    _WATCHING.append(parent)
 
     def watch():
         while True:
@@ -194,28 +200,65 @@ def run_study(study, *, jobs=1, force=False, cluster=None):
     decided = [decisions.get((r.site, r.participant_id, r.paradigm)) for r in recordings]
     write_dataset_description(study.output, study.name)
     jobs = os.cpu_count() if jobs == -1 else max(1, int(jobs))
-    if cluster is not None:
-        summaries = _run_on_dask(study, recordings, force, cluster, jobs, decided)
-    elif jobs == 1 or len(recordings) < 2:
-        log.info("Processing %d recordings in this process", len(recordings))
-        summaries = [process_and_write(study, r, force, d) for r, d in zip(recordings, decided)]
-    else:
-        log.info("Processing %d recordings with %d worker(s)", len(recordings), jobs)
-        summaries = [None] * len(recordings)
-        with ProcessPoolExecutor(max_workers=jobs, mp_context=get_context("spawn"),
-                                 initializer=_limit_threads) as pool:
-            # Largest files first (longest-processing-time first): the longest task does not
-            # start last and leave one worker idle at the end.
-            order = sorted(range(len(recordings)), key=lambda i: -_size(recordings[i]))
-            futures = {pool.submit(process_and_write, study, recordings[i], force, decided[i]): i for i in order}
-            for future in as_completed(futures):
-                i = futures[future]
-                summaries[i] = _outcome(future, recordings[i])
+    summaries = [None] * len(recordings)
+    interrupted = None
+    try:
+        if cluster is not None:
+            summaries = _run_on_dask(study, recordings, force, cluster, jobs, decided)
+        elif jobs == 1 or len(recordings) < 2:
+            log.info("Processing %d recordings in this process", len(recordings))
+            for i, (r, d) in enumerate(zip(recordings, decided)):
+                summaries[i] = process_and_write(study, r, force, d)
+        else:
+            _run_in_pool(study, recordings, force, decided, jobs, summaries)
+    except KeyboardInterrupt as exc:   # SIGINT, or SIGTERM turned into it by the command line
+        interrupted = exc
+        log.warning("Interrupted: %d of %d recordings finished; the others are left for the next run",
+                    sum(s is not None for s in summaries), len(recordings))
+    summaries = [s if s is not None else _interrupted(r) for s, r in zip(summaries, recordings)]
     for s in summaries:
         if s["status"] == "failed":
             log.warning("failed: %s", s["error"])
     write_group_outputs(study, recordings, summaries, decisions)
+    if interrupted is not None:
+        raise Interrupted(summaries) from None
     return summaries
+
+
+class Interrupted(KeyboardInterrupt):
+    """A run stopped by SIGINT or SIGTERM; ``summaries`` holds every recording's state."""
+
+    def __init__(self, summaries):
+        super().__init__("interrupted")
+        self.summaries = summaries
+
+
+def _interrupted(recording):
+    return {"site": recording.site, "participant_id": recording.participant_id, "paradigm": recording.paradigm,
+            "group": recording.group, "status": "failed",
+            "error": f"{recording.path.name}: not finished (the run was interrupted); the next run processes it"}
+
+
+def _run_in_pool(study, recordings, force, decided, jobs, summaries):
+    """Worker processes, largest files first; on an interrupt the workers are ended at once."""
+    import multiprocessing
+
+    log.info("Processing %d recordings with %d worker(s)", len(recordings), jobs)
+    pool = ProcessPoolExecutor(max_workers=jobs, mp_context=get_context("spawn"), initializer=_limit_threads)
+    try:
+        # Largest files first (longest-processing-time first): the longest task does not
+        # start last and leave one worker idle at the end.
+        order = sorted(range(len(recordings)), key=lambda i: -_size(recordings[i]))
+        futures = {pool.submit(process_and_write, study, recordings[i], force, decided[i]): i for i in order}
+        for future in as_completed(futures):
+            i = futures[future]
+            summaries[i] = _outcome(future, recordings[i])
+    except KeyboardInterrupt:
+        for child in multiprocessing.active_children():
+            child.terminate()
+        pool.shutdown(wait=False, cancel_futures=True)
+        raise
+    pool.shutdown(wait=True)
 
 
 CONNECT_TIMEOUT = "20s"  # how long to wait for a Dask scheduler

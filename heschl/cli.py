@@ -8,10 +8,13 @@ from __future__ import annotations
 import argparse
 import logging
 import os
+import signal
 import sys
+import threading
 from pathlib import Path
 
 from . import __version__
+from .batch import Interrupted
 from .errors import DefinitionError, HeschlError
 
 __all__ = ["main", "run_demo", "run_check", "run_run", "run_decide"]
@@ -180,6 +183,41 @@ def _restore_logging(before):
     log.setLevel(level)
 
 
+def _stop_on_term():
+    """SIGTERM ends a run as SIGINT does (workers ended, summary printed); returns the list
+    the received signal number is put in."""
+    received = []
+
+    def handler(signum, frame):
+        received.append(signum)
+        raise KeyboardInterrupt
+
+    if threading.current_thread() is threading.main_thread():
+        received.append(None)   # placeholder for the handlers to restore
+        received[0] = (signal.signal(signal.SIGTERM, handler), signal.signal(signal.SIGINT, handler))
+    return received
+
+
+def _signal_of(received):
+    """The signal that stopped the run (SIGINT when none was recorded, e.g. a direct call)."""
+    return received[-1] if len(received) > 1 else signal.SIGINT
+
+
+def _restore_signals(received):
+    if received:
+        term, intr = received[0]
+        signal.signal(signal.SIGTERM, term)
+        signal.signal(signal.SIGINT, intr)
+
+
+def study_of(args):
+    """The study a run was given (for the summary of an interrupted run)."""
+    from .config import load_study
+
+    path = args.study if args.command == "run" else Path(args.folder) / "study.toml"
+    return load_study(path)
+
+
 def main(argv=None):
     """Entry point; returns the exit code."""
     parser = _parser()
@@ -191,6 +229,7 @@ def main(argv=None):
         parser.print_help()
         return 2
     before = _logging(args.verbose, args.quiet)
+    received = _stop_on_term()
     try:
         if args.command == "check":
             _, rows = run_check(args.study)
@@ -209,6 +248,16 @@ def main(argv=None):
         else:
             study, summaries = run_demo(args.folder, size=args.size, jobs=args.jobs, force=args.force)
         return _print_run(study, summaries)
+    except Interrupted as exc:
+        _print_run(study_of(args), exc.summaries)
+        signum = _signal_of(received)
+        print(f"heschl: stopped by {signal.Signals(signum).name}; rerun the same command to finish "
+              "(finished recordings are kept)", file=sys.stderr)
+        return 128 + int(signum)
+    except KeyboardInterrupt:
+        signum = _signal_of(received)
+        print(f"heschl: stopped by {signal.Signals(signum).name}", file=sys.stderr)
+        return 128 + int(signum)
     except DefinitionError as exc:
         print(f"heschl: {exc}", file=sys.stderr)
         return 2
@@ -216,6 +265,7 @@ def main(argv=None):
         print(f"heschl: {exc}", file=sys.stderr)
         return 1
     finally:
+        _restore_signals(received)
         _restore_logging(before)
 
 

@@ -1,0 +1,99 @@
+"""Signals and killed runs, with real processes: `heschl run --jobs 2` in a subprocess.
+
+SIGTERM (as a cluster's job manager sends) and SIGINT stop a run cleanly: workers ended,
+the summary printed, exit code 128 + the signal (143, 130: the shell's convention, common
+practice). SIGKILL of the parent leaves no worker running: each worker watches its parent
+(heschl.batch). Workers are recognised by an environment variable they inherit.
+"""
+import os
+import signal
+import subprocess
+import sys
+import time
+import uuid
+from pathlib import Path
+
+import pytest
+
+gen2 = pytest.importorskip("gen2")  # tests/gen2, on the path through pytest's rootdir
+
+pytestmark = pytest.mark.skipif(not Path("/proc/self/environ").exists(), reason="needs Linux /proc")
+
+
+@pytest.fixture(scope="module")
+def four(tmp_path_factory):
+    """Four 40 s gen2 oddballs (a few seconds of processing each)."""
+    root = tmp_path_factory.mktemp("four")
+    return gen2.make_study(root, n_channels=32, subjects=4, paradigms=("oddball",), size="test", seed=8,
+                           sfreq=250.0, duration_s=40.0)
+
+
+def _tagged(tag):
+    """Process ids whose environment holds HESCHL_TEST_TAG=tag."""
+    found = []
+    for entry in Path("/proc").iterdir():
+        if not entry.name.isdigit():
+            continue
+        try:
+            env = (entry / "environ").read_bytes()
+        except OSError:
+            continue
+        if f"HESCHL_TEST_TAG={tag}".encode() in env.split(b"\0"):
+            found.append(int(entry.name))
+    return found
+
+
+def _start(study, tag):
+    env = dict(os.environ, HESCHL_TEST_TAG=tag, PYTHONUNBUFFERED="1")
+    return subprocess.Popen([sys.executable, "-m", "heschl.cli", "run", "--force", "--jobs", "2", str(study)],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env,
+                            cwd=Path(study).parent)
+
+
+def _wait_for_workers(proc, tag, timeout=60.0):
+    """Wait until the run's two workers exist and have started work."""
+    end = time.time() + timeout
+    while time.time() < end:
+        if len(_tagged(tag)) >= 3:          # the parent and two workers
+            time.sleep(3.0)                   # inside their first recordings
+            return
+        time.sleep(0.2)
+    proc.kill()
+    pytest.fail("the workers did not start")
+
+
+def _gone(tag, timeout=10.0):
+    end = time.time() + timeout
+    while time.time() < end:
+        if not _tagged(tag):
+            return True
+        time.sleep(0.2)
+    return False
+
+
+@pytest.mark.parametrize("signum, code", [(signal.SIGTERM, 143), (signal.SIGINT, 130)])
+def test_a_signal_stops_the_run_cleanly(four, signum, code):
+    tag = uuid.uuid4().hex
+    proc = _start(four, tag)
+    _wait_for_workers(proc, tag)
+    proc.send_signal(signum)
+    out, err = proc.communicate(timeout=60)
+    assert proc.returncode == code, (out, err)
+    assert "recording(s):" in out and "not finished (the run was interrupted)" in out
+    assert f"stopped by {signal.Signals(signum).name}" in err and "Traceback" not in err
+    assert _gone(tag), "workers still running after the run stopped"
+    # What was finished is kept; a rerun does the rest.
+    rerun = subprocess.run([sys.executable, "-m", "heschl.cli", "-q", "run", "--jobs", "2", str(four)],
+                           capture_output=True, text=True, cwd=Path(four).parent, timeout=600)
+    assert rerun.returncode == 0, rerun.stdout + rerun.stderr
+    assert not list(Path(four).parent.rglob("*.tmp-*"))
+
+
+def test_sigkill_of_the_parent_leaves_no_worker(four):
+    # Before: the workers went on running and writing for minutes.
+    tag = uuid.uuid4().hex
+    proc = _start(four, tag)
+    _wait_for_workers(proc, tag)
+    proc.kill()
+    proc.communicate(timeout=30)
+    assert _gone(tag, timeout=10.0), f"workers {_tagged(tag)} still running 10 s after the parent was killed"

@@ -330,9 +330,14 @@ def write_group_outputs(study, recordings, summaries, decisions=None):
             "reference to the study file for the group summary", study.source,
             ", ".join(sorted(set(table["group"]) - {"n/a"})))
     view = study_view(study.output, done, table, qc_table)
-    write_group(study.output, table, qc_table, render_study(study.name, table, qc_table, failures, summary,
-                                                            view, groups), summary)
-    return table, qc_table
+    page = render_study(study.name, table, qc_table, failures, summary, view, groups)
+    # A recording that failed before it had outputs keeps its row: verdict "failed" and why.
+    failed_rows = [{"participant_id": s["participant_id"], "site": s["site"], "group": s["group"],
+                    "paradigm": s["paradigm"], "verdict": "failed", "flags": s["error"], "page": None}
+                   for s in failures]
+    written = _qc_table(qc_rows + failed_rows) if failed_rows else qc_table
+    write_group(study.output, table, written, page, summary)
+    return table, written
 
 
 def _qc_table(rows):

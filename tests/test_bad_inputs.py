@@ -361,3 +361,25 @@ def test_a_write_that_hits_a_full_disk_removes_what_it_wrote(study, capsys, monk
     (line,) = [x for x in out.splitlines() if x.strip().startswith("failed:")]
     assert "the disk is full" in line
     assert _leftovers(study.parent) == []
+
+
+def test_one_bad_recording_among_good_ones(tmp_path, capsys):
+    # Acceptance of the bad-input issue: every good output is written, the bad one is
+    # listed (with its row in group/qc.tsv), and the run exits 1.
+    import pandas as pd
+
+    study = gen2.make_study(tmp_path, n_channels=32, subjects=3, paradigms=("oddball",), size="test", seed=12,
+                            sfreq=250.0, duration_s=20.0)
+    bad = next((tmp_path / "raw").rglob("sub-G02_*_raw.fif"))
+    bad.write_bytes(bad.read_bytes()[:300])          # cut to its first 300 bytes: unreadable
+    code, out, err = _run(["-q", "run", str(study)], capsys)
+    assert code == 1
+    (line,) = [x for x in out.splitlines() if x.strip().startswith("failed:")]
+    assert "sub-G02_task-oddball_raw.fif" in line and "cannot be read" in line
+    output = tmp_path / "derivatives" / "heschl"
+    for sub in ("sub-G01", "sub-G03"):
+        assert (output / sub / "eeg" / f"{sub}_task-oddball_provenance.json").exists()
+    qc = pd.read_csv(output / "group" / "qc.tsv", sep="\t")
+    row = qc.set_index("participant_id").loc["sub-G02"]
+    assert row["verdict"] == "failed" and "cannot be read" in row["flags"]
+    assert set(qc["participant_id"]) == {"sub-G01", "sub-G02", "sub-G03"}

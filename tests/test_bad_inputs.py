@@ -268,7 +268,7 @@ def _local_feature_set(study, edit):
     # Before: "FCzz" made the set look like an MEG set: "not applicable", exit 0.
     (lambda t: t.replace('frontocentral = ["Fz", "FC1", "FC2", "FCz", "Cz"]',
                          'frontocentral = ["Fz", "FC1", "FC2", "FCzz", "Cz"]'),
-     ['"FCzz" is neither a 10-05 electrode name', 'did you mean "FCz"']),
+     ['"FCzz" is not a 10-05 electrode name', 'did you mean "FCz"']),
     # Before: fraction = 1.0 passed the loader and became NaN "could not be computed".
     (lambda t: t.replace("fraction = 0.5 ", "fraction = 1.0 "), ["fraction", "1 is out of range", "below 1"]),
 ])

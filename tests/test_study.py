@@ -307,6 +307,7 @@ def test_blinks_are_removed_from_kept_epochs(processed_study, truth):
     paradigm = study.analyses[0].paradigm
     site = study.sites[recording.site]
     raw, markers, record = harmonise(read_raw(recording.path), site, paradigm, study.common_channels, "x")
+    uncleaned = raw.copy().pick(["Fp1"]).filter(1.0, None, verbose="error")   # before ocular correction
     cleaning = clean(raw, paradigm, where="x", restored=record["restored_reference"],
                      line_frequency=site.line_frequency)
     data, times, entries, ch_names, _, _ = _segment_and_reject(raw, markers, paradigm, cleaning)
@@ -325,8 +326,9 @@ def test_blinks_are_removed_from_kept_epochs(processed_study, truth):
         return abs(np.corrcoef(np.concatenate(eeg), np.concatenate(blink))[0, 1])
 
     after = kept_correlation()
-    # The source is real: in the continuous (uncut) Fp1 the blinks dominate.
-    before = abs(np.corrcoef(raw.get_data(picks=["Fp1"])[0], course)[0, 1])
+    # The source is real: in the continuous Fp1 before cleaning (high-passed at 1 Hz) the
+    # blinks dominate; the default ocular correction (ICA) then removes them.
+    before = abs(np.corrcoef(uncleaned.get_data()[0], course)[0, 1])
     print(f"blink source correlation at Fp1: continuous {before:.2f}, kept epochs {after:.2f}")
     assert before > 0.5
     assert after < 0.2
@@ -359,14 +361,22 @@ def test_coherence_is_derived_from_the_cross_spectra(processed_study):
 
 def test_recordings_without_eog_carry_a_flag_and_those_with_eog_count_kept_blinks(processed_study, truth):
     """Issue acceptance: a recording without EOG gets ocular handling or a clear flag saying why not."""
+    # Since the two-generator evaluation (DEVELOPERS.md) the default is ICA for every EEG
+    # recording; only the MEG recording is left to rejection and counts its kept blinks.
     study, _ = processed_study
     for recording in discover(study):
         qc = json.loads(recording_paths(study.output, recording)["qc"].read_text())
         codes = {f["code"]: f for f in qc["flags"]}
-        if not qc["channels"]["eog"]:  # Alder and Birch record no EOG
-            assert "no-eog" in codes and "left to epoch rejection" in codes["no-eog"]["message"], recording
-            assert qc["ocular"]["kept_blinks"] is None
-        else:  # Cedar (VEOG) and Dogwood (EOG061): blinks found on the vertical EOG
+        if not qc["channels"]["eog"]:  # Alder and Birch record no EOG: ICA by component properties
+            prov = json.loads(recording_paths(study.output, recording)["provenance"].read_text())
+            ica = prov["steps"]["clean"]["ocular"]["ica"]
+            assert ica["selection"] == "properties", recording
+            assert [e["kind"] for e in ica["excluded"]] == ["blink"] or "no-ocular-component" in codes, recording
+            assert "no-eog" not in codes and qc["ocular"]["kept_blinks"] is None
+        elif recording.datatype == "eeg":  # Cedar: ICA with its VEOG; blinks stay in kept trials, corrected
+            assert qc["ocular"]["method"] == "ica" and qc["ocular"]["kept_blinks"] is None
+            assert qc["ocular"]["corrected_residual"] < 0.2
+        else:  # Dogwood (EOG061, MEG only: not corrected): blinks found on the vertical EOG
             blinks = qc["ocular"]["kept_blinks"]
             assert blinks["channel"] in ("VEOG", "EOG061") and blinks["blinks"] > 0
             t = next(t for t in truth["recordings"] if t["participant_id"] == recording.participant_id

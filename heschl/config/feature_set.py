@@ -99,22 +99,19 @@ def load_feature_set(path, paradigm):
                       document=doc)
 
 
-#: Names of MEG sensors (Neuromag "MEG0113" or "MEG 0113"; CTF "MLC11").
-_MEG_NAME = re.compile(r"^(MEG ?\d{3,4}|M[LRZ][A-Z]\d{2})$")
-
-
 def _check_region_names(table, rname, names):
-    """Every region channel is a 10-05 electrode or an MEG sensor name (else a typo)."""
+    """A region names either 10-05 electrodes or MEG sensors, not both: a name that is no
+    electrode among electrode names is a typo (with the closest electrode offered)."""
     from ..harmonise import standard_name_map
 
     known = standard_name_map()
-    for name in names:
-        if name.upper() in known or _MEG_NAME.match(name):
-            continue
-        table.fail(rname, f'channel "{name}" is neither a 10-05 electrode name nor an MEG sensor name'
+    odd = [n for n in names if n.upper() not in known]
+    if odd and len(odd) < len(names):
+        name = odd[0]
+        table.fail(rname, f'channel "{name}" is not a 10-05 electrode name, and the region\'s other channels are'
                    f"{did_you_mean(name, sorted(set(known.values())))}",
-                   "correct the name (heschl renames each site's channels to 10-05 names; an MEG region names "
-                   "sensors such as MEG0113)")
+                   "correct the name (heschl renames each site's channels to 10-05 names; a region holds one "
+                   "sensor type)")
 
 
 def _expand_measure(section, paradigm, regions, bands, spec, closures=None):

@@ -70,19 +70,14 @@ def cleaning_flags(cleaning, limits, paradigm):
     if ocular.get("skipped_reason") and ocular.get("policy") != "none":
         flags.append(flag("caution", "no-ocular-correction", ocular["skipped_reason"]))
     ica = ocular.get("ica") or {}
-    if ica.get("selection") == "properties":
-        # Without an EOG the residual correlation is with the frontal channels' own mean,
-        # which shares brain activity with every channel: no measure of what is left.
-        if not ica.get("excluded"):
-            flags.append(flag("note", "no-ocular-component",
-                              f"no EOG channel and none of the {ica.get('n_components')} ICA components has every "
-                              "property of a blink or an eye movement: any left were left to epoch rejection. "
-                              "Check the frontal channels of the averages"))
-        residual = {}
-    else:
-        residual = (ocular.get("residual_correlation") or {}).get("by_source", {})
-    vertical = {k: v for k, v in residual.items() if "HEOG" not in k.upper()}
-    worst = max((v["after"] for v in vertical.values()), default=None)
+    if ica.get("selection") == "properties" and not ica.get("excluded"):
+        flags.append(flag("note", "no-ocular-component",
+                          f"no EOG channel and none of the {ica.get('n_components')} ICA components has every "
+                          "property of a blink or an eye movement: any left were left to epoch rejection. "
+                          "Check the frontal channels of the averages"))
+    from .metrics import vertical_residual
+
+    worst = vertical_residual(ocular)
     if worst is not None and worst > limits["max_eog_correlation"]:
         flags.append(flag("caution", "ocular-residual", f"EEG still correlates {worst:.2f} with the EOG source "
                           f"after correction (limit {limits['max_eog_correlation']:g})"))

@@ -155,10 +155,22 @@ def kept_blinks(raw, entries, window):
             "fraction": round(hit / len(kept), 4) if kept else None}
 
 
+def vertical_residual(ocular):
+    """Largest residual correlation of the EEG with a vertical EOG source after correction
+    (None when not measured). A horizontal EOG sits beside F7/F8 and shares their brain
+    activity, so its residual says little about what is left of the eyes; nor does the
+    frontal channels' own mean when no EOG was recorded (ICA by properties)."""
+    if (ocular.get("ica") or {}).get("selection") == "properties":
+        return None
+    by_source = (ocular.get("residual_correlation") or {}).get("by_source", {})
+    vertical = [v["after"] for k, v in by_source.items() if "HEOG" not in k.upper()]
+    return max(vertical) if vertical else None
+
+
 def ocular_record(cleaning, rejection, harmonised):
     """What was done about ocular artefacts and what is left of them in the kept trials."""
     ocular = cleaning.get("ocular") or {}
     return {"policy": ocular.get("policy"), "method": ocular.get("method"),
             "eog_channels": harmonised["eog_channels"],
-            "corrected_residual": (ocular.get("residual_correlation") or {}).get("after"),
+            "corrected_residual": vertical_residual(ocular),
             "kept_blinks": rejection.get("kept_blinks")}

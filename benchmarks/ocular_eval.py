@@ -50,16 +50,9 @@ ODDBALL_S = 600.0
 
 
 def _gen2_truth(rec, n, sfreq):
-    import gen2.artefacts as A
+    from gen2.artefacts import blink_course
 
-    k, tau = A.BLINK_SHAPE
-    t = np.arange(int(8 * k * tau * sfreq)) / sfreq
-    pulse = (t / (k * tau)) ** k * np.exp(k - t / tau)
-    course = np.zeros(n)
-    for b in rec["artefacts"]["blinks"]:
-        i = int(round(b["onset_s"] * sfreq))
-        seg = pulse[:max(0, min(len(pulse), n - i))]
-        course[i:i + len(seg)] += b["amplitude_uv"] * seg
+    course = blink_course(rec["artefacts"]["blinks"], n, sfreq)
     r = rec["responses"]
     grid = np.linspace(*WINDOW, 1501)
     mismatch = float(np.mean(r["mismatch_amplitude_uv"] * np.exp(-0.5 * ((grid - r["mismatch_latency_s"])

@@ -221,16 +221,16 @@ def run_study(study, *, jobs=1, force=False, cluster=None):
             log.warning("failed: %s", s["error"])
     write_group_outputs(study, recordings, summaries, decisions)
     if interrupted is not None:
-        raise Interrupted(summaries) from None
+        raise Interrupted(study, summaries) from None
     return summaries
 
 
 class Interrupted(KeyboardInterrupt):
     """A run stopped by SIGINT or SIGTERM; ``summaries`` holds every recording's state."""
 
-    def __init__(self, summaries):
+    def __init__(self, study, summaries):
         super().__init__("interrupted")
-        self.summaries = summaries
+        self.study, self.summaries = study, summaries
 
 
 def _interrupted(recording):

@@ -210,14 +210,6 @@ def _restore_signals(received):
         signal.signal(signal.SIGINT, intr)
 
 
-def study_of(args):
-    """The study a run was given (for the summary of an interrupted run)."""
-    from .config import load_study
-
-    path = args.study if args.command == "run" else Path(args.folder) / "study.toml"
-    return load_study(path)
-
-
 def main(argv=None):
     """Entry point; returns the exit code."""
     parser = _parser()
@@ -249,7 +241,7 @@ def main(argv=None):
             study, summaries = run_demo(args.folder, size=args.size, jobs=args.jobs, force=args.force)
         return _print_run(study, summaries)
     except Interrupted as exc:
-        _print_run(study_of(args), exc.summaries)
+        _print_run(exc.study, exc.summaries)
         signum = _signal_of(received)
         print(f"heschl: stopped by {signal.Signals(signum).name}; rerun the same command to finish "
               "(finished recordings are kept)", file=sys.stderr)

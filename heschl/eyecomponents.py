@@ -205,6 +205,7 @@ def component_properties(patterns, sources, names, sfreq, data=None, high_pass=1
     band = (freqs >= high_pass) & (freqs < TOP_HZ)
     low = power[:, slow].sum(axis=1) / np.maximum(power[:, band].sum(axis=1), np.finfo(float).tiny)
     kurt = kurtosis(sources, axis=1, fisher=True)
+    lateral = g["left"] + g["right"]
     out = []
     for k in range(patterns.shape[1]):
         w = np.abs(patterns[:, k])
@@ -215,7 +216,6 @@ def component_properties(patterns, sources, names, sfreq, data=None, high_pass=1
             mirror = float(left @ right / d) if d > 0 else 0.0
         else:
             mirror = float("nan")
-        lateral = g["left"] + g["right"]
         out.append({
             "frontal": float(w[g["pole"]].mean() / mean) if g["pole"] else float("nan"),
             "lateral": float(w[lateral].mean() / mean) if lateral else float("nan"),

@@ -112,23 +112,11 @@ def gen2_recording(tmp_path_factory):
 
 
 def _courses(raw, truth):
-    import gen2.artefacts as art
+    from gen2.artefacts import blink_course, saccade_course
 
-    sfreq, n = raw.info["sfreq"], raw.n_times
-    k, tau = art.BLINK_SHAPE
-    t = np.arange(int(8 * k * tau * sfreq)) / sfreq
-    pulse = (t / (k * tau)) ** k * np.exp(k - t / tau)
-    blink = np.zeros(n)
-    for b in truth["artefacts"]["blinks"]:
-        i = int(round(b["onset_s"] * sfreq))
-        seg = pulse[:max(0, min(len(pulse), n - i))]
-        blink[i:i + len(seg)] += b["amplitude_uv"] * seg
-    tt = raw.times
-    move = np.zeros(n)
-    for s in truth["artefacts"]["saccades"]:
-        edge = lambda c: 0.5 * (1 + np.tanh((tt - c) / 0.016))   # the generator's logistic edge
-        move += s["amplitude_uv"] * (edge(s["onset_s"]) - edge(s["onset_s"] + s["hold_s"]))
-    return mne.filter.filter_data(np.vstack([blink, move]), sfreq, 1.0, None, verbose="error")
+    blink = blink_course(truth["artefacts"]["blinks"], raw.n_times, raw.info["sfreq"])
+    move = saccade_course(truth["artefacts"]["saccades"], raw.times)
+    return mne.filter.filter_data(np.vstack([blink, move]), raw.info["sfreq"], 1.0, None, verbose="error")
 
 
 def _max_corr(raw, course):

@@ -63,8 +63,15 @@ def _one_line(exc):
     assert "\n" not in text and "Traceback" not in text and text.strip(), text
 
 
-def _paradigm_text():
-    return (ROOT / "paradigms" / "oddball.toml").read_text(encoding="utf-8")
+def _loads_or_one_line(load, text, name):
+    """Write ``text`` to a file called ``name`` and load it: accepted, or one line."""
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / name
+        path.write_text(text, encoding="utf-8")
+        try:
+            load(path)
+        except HeschlError as exc:
+            _one_line(exc)
 
 
 @SETTINGS
@@ -72,14 +79,8 @@ def _paradigm_text():
 def test_a_damaged_paradigm_loads_or_fails_in_one_line(data):
     from heschl.config import load_paradigm
 
-    text = data.draw(edited(_paradigm_text()))
-    with tempfile.TemporaryDirectory() as tmp:
-        path = Path(tmp) / "oddball.toml"
-        path.write_text(text, encoding="utf-8")
-        try:
-            load_paradigm(path)
-        except HeschlError as exc:
-            _one_line(exc)
+    text = data.draw(edited((ROOT / "paradigms" / "oddball.toml").read_text(encoding="utf-8")))
+    _loads_or_one_line(load_paradigm, text, "oddball.toml")
 
 
 @SETTINGS
@@ -89,13 +90,7 @@ def test_a_damaged_feature_set_loads_or_fails_in_one_line(data):
 
     paradigm = load_paradigm(ROOT / "paradigms" / "oddball.toml")
     text = data.draw(edited((ROOT / "features" / "oddball-core.toml").read_text(encoding="utf-8")))
-    with tempfile.TemporaryDirectory() as tmp:
-        path = Path(tmp) / "set.toml"
-        path.write_text(text, encoding="utf-8")
-        try:
-            load_feature_set(path, paradigm)
-        except HeschlError as exc:
-            _one_line(exc)
+    _loads_or_one_line(lambda path: load_feature_set(path, paradigm), text, "set.toml")
 
 
 _STUDY = """name = "fuzz"
@@ -126,14 +121,7 @@ oddball = "raw/sub-*_task-oddball_raw.fif"
 def test_a_damaged_study_file_loads_or_fails_in_one_line(data):
     from heschl.config import load_study
 
-    text = data.draw(edited(_STUDY))
-    with tempfile.TemporaryDirectory() as tmp:
-        path = Path(tmp) / "study.toml"
-        path.write_text(text, encoding="utf-8")
-        try:
-            load_study(path)
-        except HeschlError as exc:
-            _one_line(exc)
+    _loads_or_one_line(load_study, data.draw(edited(_STUDY)), "study.toml")
 
 
 @SETTINGS

@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..vocabulary import FLAG_LEVELS
+from .metrics import vertical_residual
 
 __all__ = ["FLAG_LEVELS", "flag", "verdict", "trial_flags", "channel_flags", "snr_flags", "cleaning_flags",
            "input_flags", "inversion_flags", "ocular_flags"]
@@ -75,8 +76,6 @@ def cleaning_flags(cleaning, limits, paradigm):
                           f"no EOG channel and none of the {ica.get('n_components')} ICA components has every "
                           "property of a blink or an eye movement: any left were left to epoch rejection. "
                           "Check the frontal channels of the averages"))
-    from .metrics import vertical_residual
-
     worst = vertical_residual(ocular)
     if worst is not None and worst > limits["max_eog_correlation"]:
         flags.append(flag("caution", "ocular-residual", f"EEG still correlates {worst:.2f} with the EOG source "

@@ -10,7 +10,8 @@ import numpy as np
 
 from .caps import montage, positions
 
-__all__ = ["RATES", "event_times", "blink_pattern", "saccade_pattern", "blinks", "saccades", "muscle",
+__all__ = ["RATES", "event_times", "blink_pattern", "saccade_pattern", "blink_course", "saccade_course",
+           "blinks", "saccades", "muscle",
            "pops", "drift", "mains"]
 
 #: Events per minute by paradigm (rest: eyes-open block; no blinks with the eyes closed).
@@ -70,11 +71,42 @@ def saccade_pattern(names):
     return (_falloff(pos, le, 0.05) - _falloff(pos, re, 0.05)) / (_falloff(f7, le, 0.05) - _falloff(f7, re, 0.05))
 
 
+def _blink_pulse(sfreq):
+    """The unit blink: a gamma pulse of ``BLINK_SHAPE``, peak 1 at k * tau."""
+    k, tau = BLINK_SHAPE
+    t = np.arange(int(8 * k * tau * sfreq)) / sfreq
+    return (t / (k * tau)) ** k * np.exp(k - t / tau)
+
+
+def _saccade_edge(t, c):
+    return 1.0 / (1.0 + np.exp(-(t - c) / 0.008))   # ~30 ms 10-90 % rise
+
+
+def blink_course(records, n, sfreq):
+    """The blinks' time course (µV at the mean of Fp1/Fp2) rebuilt from their truth records."""
+    pulse = _blink_pulse(sfreq)
+    course = np.zeros(n)
+    for b in records:
+        i = int(round(b["onset_s"] * sfreq))
+        seg = pulse[:max(0, min(len(pulse), n - i))]
+        course[i:i + len(seg)] += b["amplitude_uv"] * seg
+    return course
+
+
+def saccade_course(records, times):
+    """The eye movements' time course (µV at F7) rebuilt from their truth records."""
+    course = np.zeros(len(times))
+    with np.errstate(over="ignore"):
+        for s in records:
+            course += s["amplitude_uv"] * (_saccade_edge(times, s["onset_s"])
+                                           - _saccade_edge(times, s["onset_s"] + s["hold_s"]))
+    return course
+
+
 def blinks(rng, x, names, sfreq, times):
     """Add gamma-shaped blink pulses at ``times`` (s); returns their records."""
     k, tau = BLINK_SHAPE
-    t = np.arange(int(8 * k * tau * sfreq)) / sfreq
-    pulse = (t / (k * tau)) ** k * np.exp(k - t / tau)      # peak 1 at k * tau
+    pulse = _blink_pulse(sfreq)
     pattern = blink_pattern(names)[:, None]
     out = []
     for onset in times:
@@ -99,8 +131,7 @@ def saccades(rng, x, names, sfreq, times):
         if i0 < 0 or i1 <= i0:
             continue
         t = np.arange(i0, i1) / sfreq
-        edge = lambda c: 1.0 / (1.0 + np.exp(-(t - c) / 0.008))   # ~30 ms 10-90 % rise
-        course = amp * (edge(onset) - edge(onset + hold))
+        course = amp * (_saccade_edge(t, onset) - _saccade_edge(t, onset + hold))
         x[:, i0:i1] += (pattern * course).astype(x.dtype)
         out.append({"onset_s": round(float(onset), 4), "hold_s": round(float(hold), 3),
                     "amplitude_uv": round(float(amp), 2)})

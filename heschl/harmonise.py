@@ -18,7 +18,7 @@ from .sensors import data_picks, types_of
 from .vocabulary import RECORDING_REFERENCE_WORDS
 
 __all__ = ["OLD_NAMES", "Markers", "read_raw", "standard_montage", "standard_name_map",
-           "canonical_channel_names", "extract_markers", "harmonise"]
+           "canonical_channel_names", "extract_markers", "inspect", "harmonise", "non_finite_samples"]
 
 log = logging.getLogger(__name__)
 
@@ -221,8 +221,88 @@ def extract_markers(raw, code_map, delay, where):
     return Markers(np.asarray(keep_on)[order], [keep_lab[i] for i in order], unknown)
 
 
+def inspect(raw, site, paradigm, common_channels, where):
+    """Every rule of harmonising that the header and a cheap read of the data decide.
+
+    One code path for ``heschl run`` (through `harmonise`) and ``heschl check``: whatever
+    this passes, harmonising can do; whatever harmonising would refuse before cleaning,
+    this refuses first, with the same one-line message. It renames and types the channels
+    of ``raw`` (the header only, so an unloaded raw serves) and reads the data only for
+    the markers of a stimulus channel, the unit check's slices and the count of samples
+    that are not finite.
+
+    Parameters
+    ----------
+    raw : mne.io.BaseRaw
+        Preloaded or not; its channel names and types are changed in place.
+    site : heschl.config.Site
+    paradigm : heschl.config.Paradigm
+    common_channels : sequence of str
+        The study's channel set; empty keeps every EEG channel.
+    where : str
+        The file, for messages.
+
+    Returns
+    -------
+    markers : Markers
+    record : dict
+        What was found: the renaming, EOG channels, the reference channel to restore,
+        the amplitude check, the channels kept and the samples that are not finite.
+
+    Raises
+    ------
+    heschl.errors.InputDataError
+        The one-line reason the recording cannot be harmonised.
+    """
+    record = {"file_sampling_rate": float(raw.info["sfreq"]), "file_channels": list(raw.ch_names),
+              "duration_s": float(raw.n_times / raw.info["sfreq"])}
+    markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where)
+    record["trigger_delay_s"] = site.trigger_delay
+    renamed = canonical_channel_names(raw.ch_names, site.channel_aliases)
+    _check_unique(raw.ch_names, renamed, where)
+    raw.rename_channels(renamed)
+    record["renamed"] = renamed
+    record["eog_channels"] = _set_types(raw, site)
+    ref = reference_channel(site)
+    restore = ref if ref is not None and ref not in raw.ch_names else None
+    record["restored_reference"] = restore
+    eeg = [raw.ch_names[i] for i in _eeg_picks(raw)] + ([restore] if restore else [])
+    _check_datatype(raw, site, where, n_eeg=len(eeg))
+    # The study's common channels are an EEG cap; an MEG site keeps its sensors (and any
+    # EEG it records beside them) as they are.
+    common = list(common_channels) if site.datatype == "eeg" else []
+    record["missing_channels"] = missing = [c for c in common if c not in eeg]
+    if missing:
+        raise InputDataError(problem(where, f"lacks {len(missing)} of the study's common channels "
+                                     f"({', '.join(missing[:6])})",
+                                     "add channel_aliases for them or shorten common_channels"))
+    kept = common or eeg
+    if kept and (restore or not _positions_measured(raw, [n for n in kept if n != restore])):
+        known = set(standard_montage().ch_names)
+        unknown = [n for n in kept if n not in known]
+        if unknown:
+            raise InputDataError(problem(where, f"no standard position for channels {', '.join(unknown[:6])}",
+                                         "map them to 10-05 names with channel_aliases in the study file"))
+    target = paradigm.cleaning.sampling_rate
+    if raw.info["sfreq"] < target - 1e-9:
+        raise InputDataError(problem(where, f"sampled at {raw.info['sfreq']:g} Hz, below the paradigm's "
+                                     f"{target:g} Hz", "lower cleaning.sampling_rate in the paradigm"))
+    record["amplitude_check"] = check_units(raw, where)
+    record["non_finite"] = non_finite_samples(raw, data_picks(raw.info))
+    # The data channels harmonising will keep, in its order (harmonise() records what it
+    # did keep under the same keys; a test holds the two equal).
+    import mne
+
+    meg = list(mne.pick_types(raw.info, meg=True, eeg=False, ref_meg=False, exclude=[]))
+    record["channels"] = kept + [raw.ch_names[i] for i in meg]
+    record["channel_types"] = dict(zip(record["channels"], ["eeg"] * len(kept) + types_of(raw.info, meg)))
+    return markers, record
+
+
 def harmonise(raw, site, paradigm, common_channels, where):
     """Names, types, montage, reference channel, channel set and rate, in that order.
+
+    The rules come from `inspect` (shared with ``heschl check``); this applies them.
 
     Parameters
     ----------
@@ -238,38 +318,29 @@ def harmonise(raw, site, paradigm, common_channels, where):
     Returns
     -------
     raw : mne.io.BaseRaw
+    markers : Markers
     record : dict
         What was found and changed.
     """
-    record = {"file_sampling_rate": float(raw.info["sfreq"]), "file_channels": list(raw.ch_names),
-              "duration_s": float(raw.n_times / raw.info["sfreq"])}
-    markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where)
-    record["trigger_delay_s"] = site.trigger_delay
-    renamed = canonical_channel_names(raw.ch_names, site.channel_aliases)
-    _check_unique(raw.ch_names, renamed, where)
-    raw.rename_channels(renamed)
-    record["renamed"] = renamed
+    markers, record = inspect(raw, site, paradigm, common_channels, where)
+    renamed = record["renamed"]
     if renamed:
         log.info("Renamed %d channel%s (%s)", len(renamed), "" if len(renamed) == 1 else "s",
                  ", ".join(f"{a} -> {b}" for a, b in list(renamed.items())[:4]) + (", ..." if len(renamed) > 4 else ""))
-    record["eog_channels"] = _set_types(raw, site)
-    record["restored_reference"] = _restore_reference(raw, site)
-    _check_datatype(raw, site, where)
-    # The study's common channels are an EEG cap; an MEG site keeps its sensors (and any
-    # EEG it records beside them) as they are.
-    record["missing_channels"] = _pick_common(raw, common_channels if site.datatype == "eeg" else (), where)
-    record["amplitude_check"] = check_units(raw, where, exclude=[record["restored_reference"]])
+    if record["non_finite"]:
+        hold_non_finite(raw, record["non_finite"])
+    _restore_reference(raw, record["restored_reference"])
+    _pick_common(raw, common_channels if site.datatype == "eeg" else ())
     if len(_eeg_picks(raw)):
-        _set_montage(raw, where)
-    # Runs of identical samples, before resampling smears them (heschl.saturation).
+        _set_montage(raw)
+    # Runs of identical samples, before resampling smears them (heschl.saturation); the
+    # held non-finite samples are such runs too.
     from .saturation import stuck_runs
 
-    record["stuck_runs"] = stuck_runs(raw, data_picks(raw.info), exclude=[record["restored_reference"]])
+    record["stuck_runs"] = stuck_runs(raw, data_picks(raw.info), exclude=[record["restored_reference"]],
+                                      also=record["non_finite"])
     target = paradigm.cleaning.sampling_rate
     if abs(raw.info["sfreq"] - target) > 1e-9:
-        if raw.info["sfreq"] < target:
-            raise InputDataError(problem(where, f"sampled at {raw.info['sfreq']:g} Hz, below the paradigm's "
-                                         f"{target:g} Hz", "lower cleaning.sampling_rate in the paradigm"))
         log.info("Resampled from %g Hz to %g Hz", raw.info["sfreq"], target)
         raw.resample(target, npad="auto", verbose="error")
     record["sampling_rate"] = float(raw.info["sfreq"])
@@ -278,6 +349,51 @@ def harmonise(raw, site, paradigm, common_channels, where):
     record["channel_types"] = dict(zip(record["channels"], types_of(raw.info, picks)))
     record["datatype"] = site.datatype
     return raw, markers, record
+
+
+def non_finite_samples(raw, picks, block_s=60.0):
+    """Stretches of samples that are NaN or infinite, per channel, read in blocks.
+
+    Some exporters write NaN where the amplifier lost samples. Returns channel ->
+    list of (start_sample, stop_sample); channels with none are left out.
+    """
+    sfreq, n = raw.info["sfreq"], raw.n_times
+    step = max(1, int(block_s * sfreq))
+    bad = {}
+    for a in range(0, n, step):
+        x = raw.get_data(picks=picks, start=a, stop=min(n, a + step))
+        rows = np.flatnonzero(~np.all(np.isfinite(x), axis=1))
+        for r in rows:
+            edges = np.diff(np.concatenate([[0], (~np.isfinite(x[r])).astype(np.int8), [0]]))
+            spans = zip(np.flatnonzero(edges == 1) + a, np.flatnonzero(edges == -1) + a)
+            bad.setdefault(raw.ch_names[picks[r]], []).extend((int(s), int(e)) for s, e in spans)
+    for name, spans in bad.items():   # join spans split by a block edge
+        joined = [list(spans[0])]
+        for s, e in spans[1:]:
+            if s == joined[-1][1]:
+                joined[-1][1] = e
+            else:
+                joined.append([s, e])
+        bad[name] = [tuple(x) for x in joined]
+    return bad
+
+
+def hold_non_finite(raw, spans):
+    """Replace NaN or infinite samples by the last finite value before them (the first
+    finite value after them at the start), so that filters work and the stretch becomes a
+    run of one value that `heschl.saturation` marks and whose trials are dropped."""
+    for name, items in spans.items():
+        i = raw.ch_names.index(name)
+        row = raw._data[i]
+        finite = np.isfinite(row)
+        if not finite.any():
+            row[:] = 0.0
+            continue
+        for s, e in items:
+            row[s:e] = row[s - 1] if s > 0 else row[np.flatnonzero(finite)[0]]
+    total = sum(e - s for items in spans.values() for s, e in items)
+    log.warning("%d samples that are NaN or infinite in %d channel(s) held at the last finite value", total,
+                len(spans))
 
 
 #: Plausible robust amplitude (1.4826 x median absolute deviation, median over the
@@ -304,6 +420,8 @@ def check_units(raw, where, exclude=()):
         The file, for the message.
     exclude : sequence of str
         Channels left out (a restored reference channel of zeros).
+
+    Not finite samples are read as zeros here (`non_finite_samples` reports them).
 
     Returns
     -------
@@ -355,12 +473,12 @@ def check_units(raw, where, exclude=()):
     return out
 
 
-def _check_datatype(raw, site, where):
+def _check_datatype(raw, site, where, n_eeg):
     """The site's datatype must match what the file holds (an MEG file at an EEG site is a mix-up)."""
     import mne
 
     meg = len(mne.pick_types(raw.info, meg=True, eeg=False))
-    eeg = len(_eeg_picks(raw))
+    eeg = n_eeg
     if site.datatype == "meg" and not meg:
         raise InputDataError(problem(where, f'holds no MEG channels but site "{site.name}" has datatype = "meg"',
                                      f'set sites.{site.name}.datatype = "eeg" in the study file'))
@@ -399,27 +517,11 @@ def reference_channel(site):
     return standard_name_map().get(ref.upper(), ref)
 
 
-def harmonised_names(names, site):
-    """Channel names as harmonising leaves them, from the file's names alone: renamed by
-    the site's aliases and the old 10-20 names, with the recording reference restored.
-    ``heschl check`` uses this to predict, without reading data, what ``run`` will find."""
-    mapping = canonical_channel_names(names, site.channel_aliases)
-    out = [mapping.get(n, n) for n in names]
-    ref = reference_channel(site)
-    return out + ([ref] if ref is not None and ref not in out else [])
-
-
-def missing_common(names, common, site):
-    """The study's common channels a recording lacks; an MEG site keeps its own sensors."""
-    return [c for c in common if c not in names] if site.datatype == "eeg" else []
-
-
-def _restore_reference(raw, site):
-    """Add the recording reference channel back (all zeros) when it is a named channel."""
+def _restore_reference(raw, name):
+    """Add the recording reference channel ``name`` back (all zeros); None: nothing to add."""
     import mne
 
-    name = reference_channel(site)
-    if name is None or name in raw.ch_names:
+    if name is None:
         return None
     import warnings
 
@@ -432,41 +534,32 @@ def _restore_reference(raw, site):
     return name
 
 
-def _pick_common(raw, common, where):
+def _pick_common(raw, common):
+    """Keep the common channels (every EEG channel when none are given), EOG and MEG;
+    `inspect` has made sure none is missing."""
     import mne
 
     eeg = [raw.ch_names[i] for i in mne.pick_types(raw.info, eeg=True, meg=False)]
-    if not common:
-        keep = eeg
-        missing = []
-    else:
-        missing = [c for c in common if c not in eeg]
-        if missing:
-            raise InputDataError(problem(where, f"lacks {len(missing)} of the study's common channels "
-                                         f"({', '.join(missing[:6])})",
-                                         "add channel_aliases for them or shorten common_channels"))
-        keep = list(common)
+    keep = list(common) if common else eeg
     other = [n for n in raw.ch_names if n in set(
         raw.ch_names[i] for i in mne.pick_types(raw.info, eeg=False, eog=True, meg=True))]
     raw.pick(keep + [n for n in other if n not in keep], verbose="error")
     raw.reorder_channels(keep + [n for n in raw.ch_names if n not in keep])
-    return missing
 
 
-def _set_montage(raw, where):
-    """Template 10-05 positions for the EEG channels, unless the file has digitised ones."""
-    eeg_idx = _eeg_picks(raw)
-    locs = np.array([raw.info["chs"][i]["loc"][:3] for i in eeg_idx])
-    if len(locs) and np.all(np.isfinite(locs)) and not np.any(np.all(locs == 0.0, axis=1)):
+def _positions_measured(raw, names):
+    """Whether every channel in ``names`` has a measured (finite, non-zero) position."""
+    locs = np.array([raw.info["chs"][raw.ch_names.index(n)]["loc"][:3] for n in names])
+    return bool(len(locs)) and np.all(np.isfinite(locs)) and not np.any(np.all(locs == 0.0, axis=1))
+
+
+def _set_montage(raw):
+    """Template 10-05 positions for the EEG channels, unless the file has digitised ones
+    (`inspect` has made sure every channel that needs one has a standard name)."""
+    eeg = [raw.ch_names[i] for i in _eeg_picks(raw)]
+    if _positions_measured(raw, eeg):
         return  # every EEG channel has a measured position: keep it
-    montage = standard_montage()
-    known = set(montage.ch_names)
-    eeg = [raw.ch_names[i] for i in eeg_idx]
-    unknown = [n for n in eeg if n not in known]
-    if unknown:
-        raise InputDataError(problem(where, f"no standard position for channels {', '.join(unknown[:6])}",
-                                     "map them to 10-05 names with channel_aliases in the study file"))
-    raw.set_montage(montage, on_missing="ignore", verbose="error")
+    raw.set_montage(standard_montage(), on_missing="ignore", verbose="error")
 
 
 def _eeg_picks(raw):

@@ -31,7 +31,7 @@ MIN_RUN_S = 0.05
 _GAP_S = 0.1
 
 
-def stuck_runs(raw, picks, exclude=()):
+def stuck_runs(raw, picks, exclude=(), also=None):
     """Runs of identical samples per channel.
 
     Parameters
@@ -42,6 +42,10 @@ def stuck_runs(raw, picks, exclude=()):
         Channels to judge.
     exclude : sequence of str
         Channels not judged (a restored reference of zeros).
+    also : dict or None
+        Channel -> [(start_sample, stop_sample), ...] that count as runs whatever their
+        length: samples the file held as NaN or infinite
+        (:func:`heschl.harmonise.non_finite_samples`), now held at one value.
 
     Returns
     -------
@@ -65,6 +69,9 @@ def stuck_runs(raw, picks, exclude=()):
         keep = stops - starts >= min_len
         if keep.any():
             out[name] = [(float(a / sfreq), float(b / sfreq)) for a, b in zip(starts[keep], stops[keep])]
+    for name, spans in (also or {}).items():
+        if name in raw.ch_names and name not in exclude:
+            out[name] = sorted(set(out.get(name, [])) | {(float(a / sfreq), float(b / sfreq)) for a, b in spans})
     return out
 
 

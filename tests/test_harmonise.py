@@ -104,13 +104,14 @@ def test_stimulus_channel_codes_become_text_codes():
 
 
 def test_recording_reference_channel_is_restored():
-    from heschl.harmonise import _restore_reference
+    from heschl.harmonise import _restore_reference, reference_channel
 
     info = mne.create_info(["Fz", "Cz"], 250.0, "eeg")
     raw = mne.io.RawArray(np.ones((2, 100)) * 1e-6, info, verbose="error")
     site = Site(name="alder", recording_reference="FCZ", line_frequency=50.0, trigger_delay=0.0,
                 files={}, markers={}, channel_aliases={}, eog_channels=(), subject_pattern="sub-(x)",
                 bad_channels={})
-    assert _restore_reference(raw, site) == "FCz"
+    assert reference_channel(site) == "FCz"
+    assert _restore_reference(raw, reference_channel(site)) == "FCz"
     assert raw.ch_names == ["Fz", "Cz", "FCz"]
     np.testing.assert_array_equal(raw.get_data(picks=["FCz"]), 0.0)

@@ -13,6 +13,7 @@ import logging
 import os
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from multiprocessing import get_context
+from pathlib import Path
 
 from .errors import HeschlError
 
@@ -90,19 +91,50 @@ def process_and_write(study, recording, force=False, decision=None):
     """
     from threadpoolctl import threadpool_limits
 
+    from .runlog import recording_context, recording_log
+
     summary = {"site": recording.site, "participant_id": recording.participant_id,
                "paradigm": recording.paradigm, "group": recording.group, "status": "done", "error": None}
-    try:
-        with threadpool_limits(1):
-            # One BLAS thread in every mode (serial, pool, Dask): the same sums in the same
-            # order give the same digits whatever --jobs is.
-            return _process_and_write(study, recording, force, decision, summary)
-    except HeschlError as exc:
-        summary.update(status="failed", error=str(exc))
-    except Exception as exc:  # one recording never stops the study; the reason is kept
-        log.debug("unexpected failure", exc_info=True)
-        summary.update(status="failed", error=f"{recording.path.name}: {exc.__class__.__name__}: {exc}")
+    with recording_log(recording.name) as captured, recording_context(recording.name):
+        try:
+            with threadpool_limits(1):
+                # One BLAS thread in every mode (serial, pool, Dask): the same sums in the same
+                # order give the same digits whatever --jobs is.
+                _process_and_write(study, recording, force, decision, summary)
+        except HeschlError as exc:
+            summary.update(status="failed", error=str(exc))
+        except Exception as exc:  # one recording never stops the study; the reason is kept
+            log.debug("unexpected failure", exc_info=True)
+            summary.update(status="failed", error=f"{recording.path.name}: {exc.__class__.__name__}: {exc}")
+        if summary["status"] == "failed":
+            log.error("failed: %s", summary["error"])
+    if summary["status"] != "unchanged":
+        summary["log"] = _write_log(study, recording, captured.lines)
     return summary
+
+
+def recording_log_path(output, recording):
+    """Where a recording's log file goes: ``logs/<participant>_task-<paradigm>.log``."""
+    return Path(output) / "logs" / f"{recording.stem}.log"
+
+
+def _write_log(study, recording, lines):
+    """Write the recording's log lines (kept after a failure); returns the path relative to
+    the output folder, or None when the output folder cannot be written (the console and
+    the summary still carry the reason)."""
+    path = recording_log_path(study.output, recording)
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        tmp.write_text("\n".join(lines) + "\n", encoding="utf-8")
+        os.replace(tmp, path)
+    except OSError:
+        try:
+            tmp.unlink(missing_ok=True)
+        except OSError:
+            pass
+        return None
+    return path.relative_to(study.output).as_posix()
 
 
 def _process_and_write(study, recording, force, decision, summary):
@@ -349,7 +381,7 @@ def _check_one(study, recording):
     (:func:`heschl.harmonise.inspect`), so that what passes here, the run can process."""
     from .features import applicable
     from .harmonise import inspect, read_raw
-    from .inputs import analysis_of, display_path
+    from .inputs import analysis_of, display_path, input_files
 
     site = study.sites[recording.site]
     analysis = analysis_of(study, recording)
@@ -358,6 +390,7 @@ def _check_one(study, recording):
            "file": os.path.relpath(recording.path), "error": None}
     notes = []
     try:
+        input_files(recording.path)
         raw = read_raw(recording.path, notes=notes, preload=False)
     except HeschlError as exc:
         row["error"] = str(exc)
@@ -386,6 +419,8 @@ def _check_one(study, recording):
     row["warnings"] += [f"{sum(e - s for s, e in spans)} samples of {name} are NaN or infinite; run holds them "
                         "at the last finite value and drops the trials they touch"
                         for name, spans in list(record["non_finite"].items())[:4]]
+    row["warnings"] += [f"sites.{site.name}.eog_channels names {name}, which the file lacks; the ocular step "
+                        "goes without it" for name in record["absent_eog"]]
     by_marker = {m: c.name for c in paradigm.conditions.values() for m in c.markers}
     counts = {c: 0 for c in paradigm.conditions}
     for label in markers.labels:

@@ -168,6 +168,7 @@ def _logging(verbose, quiet):
     from .runlog import RecordingFilter
 
     handler = logging.StreamHandler()
+    handler.setLevel(level)   # the logger itself may pass INFO on to a recording's log file
     handler.addFilter(RecordingFilter())
     handler.setFormatter(logging.Formatter("%(levelname)s %(recording)s%(message)s"))
     before = (list(log.handlers), log.level, log.propagate)

@@ -7,13 +7,15 @@ plain ``dict`` that ends up in ``qc.json`` and ``provenance.json``.
 """
 from __future__ import annotations
 
+import contextlib
 import logging
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
-from .errors import InputDataError, problem
+from .errors import HeschlError, InputDataError, problem
 from .sensors import data_picks, types_of
 from .vocabulary import RECORDING_REFERENCE_WORDS
 
@@ -60,24 +62,88 @@ def read_raw(path, notes=None, preload=True):
 
     import mne
 
+    from .inputs import display_path
+
     path = Path(path)
-    suffix = path.suffix.lower()
-    if suffix not in _READERS:
-        raise InputDataError(problem(path, f'file type "{suffix}" is not supported',
-                                     f"convert it to one of: {', '.join(sorted(set(_READERS) - {'.gz'}))}"))
-    if not path.is_file():
-        raise InputDataError(problem(path, "file not found", "check the site's file pattern in the study file"))
+    check_file(path)
     try:
         with warnings.catch_warnings(record=True) as said:
             warnings.simplefilter("always")
-            raw = mne.io.read_raw(path, preload=preload, verbose="warning")
+            raw = mne.io.read_raw(path, preload=False, verbose="warning")
+            if raw.n_times == 0:
+                raise InputDataError(problem(display_path(path), "holds no samples (its header lists channels but no "
+                                             "data)", "copy the recording again from its source; its data part "
+                                             "is empty"))
+            if preload:
+                raw.load_data(verbose="warning")
+    except HeschlError:
+        raise
     except Exception as exc:  # readers raise many kinds; the user needs one line
-        text = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
-        raise InputDataError(problem(path, f"cannot be read as {_READERS[suffix]} ({text})",
-                                     "check that the file is complete and of the type its name says")) from None
+        raise InputDataError(_unreadable(path, exc)) from None
     if notes is not None:
-        notes.extend(reader_notes(path, raw, [str(w.message) for w in said]))
+        notes.extend(reader_notes(path, raw, [_plain(str(w.message), path) for w in said]))
     return raw
+
+
+def check_file(path):
+    """The checks of a recording's main file that need no reader: a supported type, a file
+    (not a folder, not a broken link), not empty. One line otherwise."""
+    from .inputs import display_path
+
+    path = Path(path)
+    shown = display_path(path)
+    suffix = path.suffix.lower()
+    if suffix not in _READERS:
+        raise InputDataError(problem(shown, f'file type "{suffix}" is not supported',
+                                     f"convert it to one of: {', '.join(sorted(set(_READERS) - {'.gz'}))}"))
+    if path.is_dir():
+        raise InputDataError(problem(shown, "is a folder, not a file",
+                                     "narrow the site's file pattern in the study file so it matches recordings only"))
+    if path.is_symlink() and not path.exists():
+        raise InputDataError(problem(shown, f"is a link to {os.readlink(path)}, which does not exist",
+                                     "restore the file the link points to or remove the link"))
+    if not path.is_file():
+        raise InputDataError(problem(shown, "file not found", "check the site's file pattern in the study file"))
+    if path.stat().st_size == 0:
+        raise InputDataError(problem(shown, "is empty (0 bytes)",
+                                     "copy the recording again from its source; the copy was not completed"))
+
+
+def _plain(text, path):
+    """A reader's words with the file's absolute path shown as messages show paths."""
+    import re
+
+    from .inputs import display_path
+
+    path = Path(str(path))
+    text = re.sub(r"(?:Posix|Windows)?Path\('([^']*)'\)", r"\1", text)
+    for full in {str(path.absolute()), str(path.resolve())}:
+        text = text.replace(full, display_path(path))
+    folder = str(path.absolute().parent) + os.sep
+    return text.replace(folder, display_path(path.parent) + os.sep if display_path(path.parent) != "." else "")
+
+
+def _unreadable(path, exc):
+    """The one line for a file its reader fails on (at opening, or on a later read of an
+    unloaded file's data)."""
+    from .inputs import display_path
+
+    text = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
+    kind = _READERS.get(Path(str(path)).suffix.lower(), "its type")
+    return problem(display_path(path), f"cannot be read as {kind} ({_plain(text, path)})",
+                   "check that the file is complete and of the type its name says")
+
+
+@contextlib.contextmanager
+def _reading(where):
+    """Reads of a file's data (for an unloaded raw, the first touch of the samples) fail
+    with the same one line as opening it."""
+    try:
+        yield
+    except HeschlError:
+        raise
+    except Exception as exc:  # readers raise many kinds; the user needs one line
+        raise InputDataError(_unreadable(where, exc)) from None
 
 
 def reader_notes(path, raw, words):
@@ -177,7 +243,7 @@ def canonical_channel_names(names, aliases=None, standard=None):
     return mapping
 
 
-def extract_markers(raw, code_map, delay, where):
+def extract_markers(raw, code_map, delay, where, section="[sites.<site>.markers.<paradigm>]"):
     """Markers of the paradigm found in ``raw``, in seconds from its first sample.
 
     Parameters
@@ -213,10 +279,12 @@ def extract_markers(raw, code_map, delay, where):
         else:
             unknown[code] = unknown.get(code, 0) + 1
     if not keep_lab:
-        found = ", ".join(sorted(unknown)[:8]) or "none"
-        raise InputDataError(problem(where, f"no marker of the paradigm found (codes in the file: {found})",
-                                     "map the site's codes to the paradigm's markers under "
-                                     "[sites.<site>.markers.<paradigm>] in the study file"))
+        if not codes:
+            what = "holds no markers at all (no annotations" + (")" if stim else ", no stimulus channel)")
+        else:
+            what = f"no marker of the paradigm found (codes in the file: {', '.join(sorted(unknown)[:8])})"
+        raise InputDataError(problem(where, what, f"map the site's codes to the paradigm's markers under {section} "
+                                     "in the study file" if codes else "check that the markers were exported"))
     order = np.argsort(keep_on, kind="stable")
     return Markers(np.asarray(keep_on)[order], [keep_lab[i] for i in order], unknown)
 
@@ -256,18 +324,23 @@ def inspect(raw, site, paradigm, common_channels, where):
     """
     record = {"file_sampling_rate": float(raw.info["sfreq"]), "file_channels": list(raw.ch_names),
               "duration_s": float(raw.n_times / raw.info["sfreq"])}
-    markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where)
+    _check_length(record["duration_s"], paradigm, where)
+    with _reading(where):
+        markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where,
+                                  f"[sites.{site.name}.markers.{paradigm.name}]")
+    _check_conditions(markers, paradigm, site, where)
     record["trigger_delay_s"] = site.trigger_delay
     renamed = canonical_channel_names(raw.ch_names, site.channel_aliases)
     _check_unique(raw.ch_names, renamed, where)
     raw.rename_channels(renamed)
     record["renamed"] = renamed
     record["eog_channels"] = _set_types(raw, site)
+    record["absent_eog"] = [n for n in site.eog_channels if n not in raw.ch_names]
     ref = reference_channel(site)
     restore = ref if ref is not None and ref not in raw.ch_names else None
     record["restored_reference"] = restore
+    _check_datatype(raw, site, where, n_eeg=len(_eeg_picks(raw)))
     eeg = [raw.ch_names[i] for i in _eeg_picks(raw)] + ([restore] if restore else [])
-    _check_datatype(raw, site, where, n_eeg=len(eeg))
     # The study's common channels are an EEG cap; an MEG site keeps its sensors (and any
     # EEG it records beside them) as they are.
     common = list(common_channels) if site.datatype == "eeg" else []
@@ -287,8 +360,14 @@ def inspect(raw, site, paradigm, common_channels, where):
     if raw.info["sfreq"] < target - 1e-9:
         raise InputDataError(problem(where, f"sampled at {raw.info['sfreq']:g} Hz, below the paradigm's "
                                      f"{target:g} Hz", "lower cleaning.sampling_rate in the paradigm"))
-    record["amplitude_check"] = check_units(raw, where)
-    record["non_finite"] = non_finite_samples(raw, data_picks(raw.info))
+    with _reading(where):
+        record["non_finite"] = non_finite_samples(raw, data_picks(raw.info))
+        n = raw.n_times
+        if record["non_finite"] and all(sum(b - a for a, b in record["non_finite"].get(raw.ch_names[i], ())) == n
+                                        for i in data_picks(raw.info)):
+            raise InputDataError(problem(where, "every sample of every data channel is NaN or infinite",
+                                         "re-export the recording from its source; this export holds no values"))
+        record["amplitude_check"] = check_units(raw, where)
     # The data channels harmonising will keep, in its order (harmonise() records what it
     # did keep under the same keys; a test holds the two equal).
     import mne
@@ -449,7 +528,7 @@ def check_units(raw, where, exclude=()):
             continue
         x = np.concatenate([raw.get_data(picks=picks, start=a, stop=a + width) for a in starts], axis=1)
         if not np.all(np.isfinite(x)):
-            x = np.nan_to_num(x)
+            x = np.where(np.isfinite(x), x, 0.0)
         x = mne.filter.filter_data(x.astype(float), sfreq, 1.0, high, verbose="error")
         amp = float(np.median(MAD_TO_SD * np.median(np.abs(x - np.median(x, axis=1, keepdims=True)), axis=1)))
         out[kind] = amp * factor
@@ -471,6 +550,34 @@ def check_units(raw, where, exclude=()):
             fix = "re-export the file with its true unit in the header"
         raise InputDataError(problem(where, what, fix))
     return out
+
+
+def _check_length(duration, paradigm, where):
+    """A recording shorter than one epoch (or one resting segment) gives no trial at all."""
+    if paradigm.epochs is not None:
+        need, what = paradigm.epochs.window[1] - paradigm.epochs.window[0], "epoch"
+    else:
+        need, what = paradigm.segments.skip_start + paradigm.segments.length, "segment after the skipped start"
+    if duration < need:
+        raise InputDataError(problem(where, f"lasts {duration:.3g} s, shorter than one {what} of the paradigm "
+                                     f"({need:.3g} s)", "check that this is the whole recording"))
+
+
+def _check_conditions(markers, paradigm, site, where):
+    """Every condition of the paradigm has at least one marker: a condition with none is
+    almost always a code the site's marker map lacks or names wrongly."""
+    found = {m: 0 for m in (m for c in paradigm.conditions.values() for m in c.markers)}
+    for label in markers.labels:
+        found[label] = found.get(label, 0) + 1
+    empty = [c.name for c in paradigm.conditions.values() if not any(found.get(m) for m in c.markers)]
+    if empty:
+        seen = ", ".join(f"{label} {n}" for label, n in found.items() if n)
+        unknown = ", ".join(f"{code} x{n}" for code, n in list(markers.unknown.items())[:4])
+        raise InputDataError(problem(
+            where, f'no marker of condition "{empty[0]}"' + (f" (and {len(empty) - 1} more)" if len(empty) > 1 else "")
+            + f" (found: {seen or 'none'}" + (f"; codes the site does not map: {unknown}" if unknown else "") + ")",
+            f"map its code under [sites.{site.name}.markers.{paradigm.name}] in the study file, or check the "
+            "recording"))
 
 
 def _check_datatype(raw, site, where, n_eeg):

@@ -22,7 +22,7 @@ from .errors import DefinitionError, InputDataError, did_you_mean, problem
 log = logging.getLogger(__name__)
 
 __all__ = ["Recording", "PIPELINE_REVISION", "read_participants", "discover", "recording_files",
-           "input_hashes", "input_key", "analysis_of", "definitions_of", "display_path"]
+           "input_files", "input_hashes", "input_key", "analysis_of", "definitions_of", "display_path"]
 
 #: Bumped whenever a change of code changes what a recording's outputs are, so that
 #: resuming redoes recordings written by older code (the package version moves slower).
@@ -172,15 +172,24 @@ def _sha256(path):
     return h.hexdigest()
 
 
+def input_files(path):
+    """The main file and its companions, each checked to be there: the same front door for
+    ``heschl check`` and ``heschl run``. One line naming the file otherwise."""
+    from .harmonise import check_file
+
+    check_file(path)
+    files = recording_files(path)
+    for f in files[1:]:
+        if not f.is_file():
+            raise InputDataError(problem(display_path(path), f"its companion file {f.name} is missing",
+                                         f"put {f.name} beside {Path(path).name} (its header names it) or correct "
+                                         "the header"))
+    return files
+
+
 def input_hashes(recording):
     """sha256 of every input file of a recording, keyed by file name."""
-    out = {}
-    for f in recording_files(recording.path):
-        if not f.exists():
-            raise InputDataError(problem(f, "companion file not found",
-                                         f"put it beside {recording.path.name} as its header names it"))
-        out[f.name] = _sha256(f)
-    return out
+    return {f.name: _sha256(f) for f in input_files(recording.path)}
 
 
 def input_key(hashes, definitions):

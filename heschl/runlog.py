@@ -11,7 +11,7 @@ import contextlib
 import contextvars
 import logging
 
-__all__ = ["recording_context", "RecordingFilter", "current_recording"]
+__all__ = ["recording_context", "RecordingFilter", "current_recording", "RecordingLog", "recording_log"]
 
 _CURRENT = contextvars.ContextVar("heschl_recording", default="")
 
@@ -38,3 +38,34 @@ class RecordingFilter(logging.Filter):
         name = _CURRENT.get()
         record.recording = f"{name}: " if name else ""
         return True
+
+
+class RecordingLog(logging.Handler):
+    """Collects the heschl log lines made inside one recording's context."""
+
+    def __init__(self, name):
+        super().__init__(logging.INFO)
+        self.recording = name
+        self.lines = []
+        self.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(message)s"))
+
+    def emit(self, record):
+        if _CURRENT.get() == self.recording:
+            self.lines.append(self.format(record))
+
+
+@contextlib.contextmanager
+def recording_log(name):
+    """Collect recording ``name``'s heschl log lines (INFO and above) while the block runs,
+    whatever the console shows; yields the handler (its ``lines``)."""
+    logger = logging.getLogger("heschl")
+    handler = RecordingLog(name)
+    level = logger.level
+    if logger.getEffectiveLevel() > logging.INFO:
+        logger.setLevel(logging.INFO)
+    logger.addHandler(handler)
+    try:
+        yield handler
+    finally:
+        logger.removeHandler(handler)
+        logger.setLevel(level)

@@ -307,9 +307,12 @@ def test_a_file_pattern_that_matches_nothing_is_reported(study, capsys):
 
 
 def _leftovers(root):
-    """Temporary files and outputs of the tiny study's recording, if any."""
+    """Temporary files and outputs of the tiny study's recording, if any.
+
+    The recording's log under ``logs/`` is kept on purpose after a failure (it says why).
+    """
     return sorted(p.name for p in Path(root).rglob("*") if p.is_file() and (".tmp-" in p.name or "task-" in p.name)
-                  and "derivatives" in p.parts)
+                  and "derivatives" in p.parts and "logs" not in p.parts)
 
 
 def test_an_output_folder_under_a_file_is_one_line(study, capsys):
@@ -335,6 +338,8 @@ def test_a_full_disk_fails_the_recording_in_one_line_and_leaves_nothing(study, c
     (line,) = [x for x in out.splitlines() if x.strip().startswith("failed:")]
     assert "only 1 MB free" in line and "free disk space" in line
     assert _leftovers(study.parent) == []
+    (log,) = (study.parent / "derivatives" / "heschl" / "logs").glob("*.log")
+    assert "only 1 MB free" in log.read_text(encoding="utf-8")
 
 
 def test_a_write_that_hits_a_full_disk_removes_what_it_wrote(study, capsys, monkeypatch):

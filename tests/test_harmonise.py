@@ -115,3 +115,27 @@ def test_recording_reference_channel_is_restored():
     assert _restore_reference(raw, reference_channel(site)) == "FCz"
     assert raw.ch_names == ["Fz", "Cz", "FCz"]
     np.testing.assert_array_equal(raw.get_data(picks=["FCz"]), 0.0)
+
+
+def test_what_check_plans_is_what_harmonising_keeps(processed_study):
+    # heschl check (inspect on the header and cheap reads) and heschl run (harmonise on the
+    # loaded data) share one code path: the channels and types inspect plans are the ones
+    # harmonising keeps, and the markers are the same, at every site of the synthetic study
+    # (BrainVision, EDF, FIF with EOG, MEG).
+    from heschl.harmonise import harmonise, inspect, read_raw
+    from heschl.inputs import analysis_of, discover
+
+    study, _ = processed_study
+    seen = set()
+    for rec in discover(study):
+        if rec.site in seen:
+            continue
+        seen.add(rec.site)
+        site, paradigm = study.sites[rec.site], analysis_of(study, rec).paradigm
+        planned_markers, planned = inspect(read_raw(rec.path, preload=False), site, paradigm,
+                                           study.common_channels, rec.path.name)
+        _, markers, done = harmonise(read_raw(rec.path), site, paradigm, study.common_channels, rec.path.name)
+        assert planned["channels"] == done["channels"], rec.site
+        assert planned["channel_types"] == done["channel_types"], rec.site
+        assert planned_markers.labels == markers.labels and np.array_equal(planned_markers.onsets, markers.onsets)
+    assert len(seen) == 4

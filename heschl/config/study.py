@@ -37,8 +37,10 @@ def load_study(path):
     analyses = _analyses(top, root)
     sites = _sites(top, {a.paradigm.name: a.paradigm for a in analyses})
     groups, reference = _groups(top)
+    output = output if output.is_absolute() else root / output
+    _check_output_place(top, output, root, sites)
     return Study(name=name, source=str(path), root=root,
-                 output=output if output.is_absolute() else root / output,
+                 output=output,
                  participants=participants, common_channels=common, analyses=analyses,
                  sites=sites, document=doc, groups=groups, reference_group=reference)
 
@@ -64,6 +66,29 @@ def _groups(top):
         section.fail("reference", f'"{reference}" is not one of the labels{did_you_mean(reference, labels)}',
                      "choose the reference among [groups] labels")
     return tuple(labels), reference
+
+
+def _check_output_place(top, output, root, sites):
+    """The output folder may not lie inside a folder a site's file pattern searches: the
+    outputs would sit among the recordings (and a later pattern could match them)."""
+    import os
+
+    out = output.resolve()
+    for site in sites.values():
+        for pname, pattern in site.files.items():
+            parts = Path(pattern).parent.parts
+            fixed = []
+            for part in parts:
+                if any(c in part for c in "*?["):
+                    break
+                fixed.append(part)
+            folder = (root / Path(*fixed)).resolve() if fixed else root.resolve()
+            if not fixed or folder == root.resolve():
+                continue    # a pattern at the study's own folder: outputs go in their own subfolder
+            if out == folder or folder in out.parents:
+                top.fail("output", f'"{os.path.relpath(output, root)}" lies inside {os.path.relpath(folder, root)}, '
+                         f"where sites.{site.name}.files.{pname} looks for recordings",
+                         'choose an output folder outside the recordings, e.g. "derivatives/heschl"')
 
 
 def _analyses(top, root):

@@ -60,12 +60,15 @@ def figure_spectra(spectra, sensors, kind):
         (("before", "as the recording stopped (not cleaned)"),)
     fig, axes = figure(9.6 if cleaned else 6.0, 3.0, ncols=len(panels), sharey=True)
     axes = axes if cleaned else [[axes]]
+    positive = any(v > 0 for key, _ in panels for v in _finite([v for row in block[key] for v in row]))
     for ax, (key, label) in zip(axes[0], panels):
         lo, hi = spectra["pass_band"]
         ax.axvspan(lo, min(hi, freqs[-1]), color=PALETTE["window"], alpha=0.45, lw=0, label="pass band")
         for name, psd in zip(block["channels"], block[key]):
-            ax.semilogy(freqs, _nan(psd), color=PALETTE["second"] if name in bad else PALETTE["first"],
-                        lw=1.1 if name in bad else 0.5, alpha=0.9 if name in bad else 0.35)
+            # a recording of zeros (flat everywhere) has nothing to show on a log scale
+            draw = ax.semilogy if positive else ax.plot
+            draw(freqs, _nan(psd), color=PALETTE["second"] if name in bad else PALETTE["first"],
+                 lw=1.1 if name in bad else 0.5, alpha=0.9 if name in bad else 0.35)
         for f in spectra.get("line_harmonics", []):
             ax.axvline(f, color=PALETTE["contrast"], lw=0.8, ls=":")
         ax.set_title(label, fontsize=9)
@@ -95,12 +98,15 @@ def _spectra_section(evidence, provenance):
     line = spectra.get("line_frequency")
     method = spectra.get("line_method") or "none"
     figures = []
+    freqs = spectra["freqs"]
+    step = float(freqs[1] - freqs[0]) if len(freqs) > 1 else 0.5
+    welch = f"Welch, {1 / step:.3g} s segments, {step:.3g} Hz bins"   # 2 s, 0.5 Hz unless the data are shorter
     for kind in spectra["types"]:
-        caption = (f"Thin lines: each {_TYPE_NAMES.get(kind, kind)} channel (Welch, 2 s segments, 0.5 Hz bins). "
+        caption = (f"Thin lines: each {_TYPE_NAMES.get(kind, kind)} channel ({welch}). "
                    f"Look for the line peak{f' at {line:g} Hz' if line else ''} before cleaning and its removal "
                    f"after ({method}), channels standing apart from the bundle, and a smooth fall outside the "
                    "shaded pass band.") if not evidence.get("unusable") else (
-                   f"Thin lines: each {_TYPE_NAMES.get(kind, kind)} channel (Welch, 2 s segments, 0.5 Hz bins), "
+                   f"Thin lines: each {_TYPE_NAMES.get(kind, kind)} channel ({welch}), "
                    "as harmonised (or as read where harmonising stopped); cleaning did not finish. Look for "
                    "channels standing apart from the bundle (flat ones far below, noisy ones above) and for "
                    f"the line peak{f' at {line:g} Hz' if line else ''}.")

@@ -106,6 +106,9 @@ def channel_spectra(raw, fmax, segment=SPECTRUM_SEGMENT_S, chunk=8):
 
     picks = data_picks(raw.info)
     sfreq = raw.info["sfreq"]
+    # A recording shorter than one segment (an unusable one, shown for what it holds) gets
+    # one segment as long as the data.
+    segment = min(segment, raw.n_times / sfreq)
     out, freqs = {}, None
     for kind, idx in by_type(types_of(raw.info, picks)).items():
         factor = _display(kind)[1]

@@ -1,19 +1,21 @@
 """Adaptive epoch rejection: per-channel peak-to-peak thresholds learnt by cross-validation,
 bad channels interpolated epoch by epoch, epochs with too many bad channels dropped.
 
-autoreject's ``AutoReject`` (Jas et al. 2017) learns the thresholds, the number of
-channels it may interpolate per epoch and the consensus (fraction of bad channels that
-drops an epoch) on the *detection* copy of the trials (high-passed at 1 Hz, so slow
-drifts cannot inflate peak-to-peak amplitudes). Its decisions are then applied to the
+The method of Jas et al. 2017 (docs/REFERENCES.md F34), implemented on arrays in
+`heschl.numeric.crossval` (`LearntRejection`): thresholds, the number of channels it may
+interpolate per epoch and the consensus (fraction of bad channels that drops an epoch)
+are learnt on the *detection* copy of the trials (high-passed at 1 Hz, so slow drifts
+cannot inflate peak-to-peak amplitudes). Its decisions are then applied to the
 *analysis* copy (which may keep frequencies down to 0.1 Hz): the same epochs are
-dropped, and the same channels are interpolated, with mne's spherical splines, in the
-analysis data. An epoch whose interpolated channels form a group of neighbours larger
-than ``max_cluster`` is dropped too: a patch of scalp reconstructed from its rim is a
-guess, not a measurement.
+dropped, and the same channels are interpolated in the analysis data, with one matrix
+per set of bad channels (`heschl.repair.ChannelRepair`: spherical splines for EEG, the
+internal multipole basis for MEG). An epoch whose interpolated channels form a group of
+neighbours larger than ``max_cluster`` is dropped too: a patch of scalp reconstructed
+from its rim is a guess, not a measurement.
 
-EEG, magnetometers and gradiometers are judged per sensor type (autoreject learns
-thresholds, interpolation counts and consensus for each type). Arrays are in SI units
-inside (V, T, T/m); thresholds are reported in uV, fT and fT/cm for people.
+EEG, magnetometers and gradiometers are judged per sensor type (thresholds,
+interpolation counts and consensus for each type). Arrays are in SI units inside (V, T,
+T/m); thresholds are reported in uV, fT and fT/cm for people.
 """
 from __future__ import annotations
 
@@ -23,60 +25,30 @@ import math
 import numpy as np
 
 from .errors import InputDataError, problem
+from .numeric.crossval import CONSENSUS_CANDIDATES, LearntRejection, interpolation_candidates, tukey_fence
+from .repair import ChannelRepair
 from .sensors import DISPLAY
-from .vocabulary import INTERPOLATION_ORIGIN, MEG_SENSOR_TYPES, MIN_ADAPTIVE_EPOCHS, SENSOR_TYPES
+from .vocabulary import MIN_ADAPTIVE_EPOCHS, SENSOR_TYPES
 
 __all__ = ["interpolation_candidates", "channel_adjacency", "interpolated_clusters",
            "adaptive_reject", "CONSENSUS_CANDIDATES", "outlier_floor", "TUKEY_K"]
 
 log = logging.getLogger(__name__)
 
-#: Fractions of the channels that, bad together in one epoch, drop it (autoreject's
-#: consensus); 10-50 % spans lenient to strict for 16-128 channels.
-CONSENSUS_CANDIDATES = (0.1, 0.2, 0.3, 0.4, 0.5)
-
 #: Fewest validation epochs per cross-validation fold (the fold's score compares a
 #: training mean with the validation median; a median of fewer than 3 is one epoch).
 MIN_VALIDATION_EPOCHS = 3
 
 #: Fence factor k of Tukey's outlier rule Q3 + k IQR (Tukey 1977; docs/REFERENCES.md F45):
-#: no learnt threshold sits below its channel's fence (see `outlier_floor`).
-TUKEY_K = 1.5
+#: no learnt threshold sits below its channel's "far out" fence (see `outlier_floor`).
+#: With the inner fence (k = 1.5) 30 % of the epochs of a clean 32-channel recording had a
+#: channel interpolated; with k = 3, 2 % (tests/test_crossval.py).
+TUKEY_K = 3.0
 
 #: Distance rule for the adjacency fallback: channels closer than this many times the
 #: median nearest-neighbour distance are neighbours. On a regular grid 1.5 reaches the
 #: diagonal neighbours (sqrt(2) = 1.41) but not the second ring (2).
 NEIGHBOUR_DISTANCE_RATIO = 1.5
-
-
-def interpolation_candidates(n_channels):
-    """Candidate numbers of channels autoreject may interpolate per epoch.
-
-    Rule: with ``top = n_channels // 4`` (interpolating more than a quarter of the
-    channels leaves too few to interpolate from, the same limit `heschl.clean` applies
-    to bad channels), the candidates are ``1, top // 4, top // 2, top``, kept when at
-    least 1, without repeats. 8 channels -> (1, 2); 32 -> (1, 2, 4, 8);
-    64 -> (1, 4, 8, 16); 128 -> (1, 8, 16, 32). Below 4 channels nothing may be
-    interpolated and the only candidate is 0 (epochs are only dropped).
-
-    Parameters
-    ----------
-    n_channels : int
-        Number of channels of the (smallest) sensor type.
-
-    Returns
-    -------
-    candidates : tuple of int
-        Increasing, each at most ``n_channels / 4``.
-    """
-    if isinstance(n_channels, bool) or not isinstance(n_channels, (int, np.integer)) or n_channels < 1:
-        raise InputDataError(problem("interpolation_candidates", f"n_channels = {n_channels!r}",
-                                     "pass the number of channels, a positive integer",
-                                     key="n_channels"))
-    top = int(n_channels) // 4
-    if top < 1:
-        return (0,)
-    return tuple(sorted({c for c in (1, top // 4, top // 2, top) if c >= 1}))
 
 
 def _positions(info, where="adaptive_reject"):
@@ -267,14 +239,14 @@ def _folds(n_epochs, cv):
 
 
 def _decisions(labels, bad_epochs, clusters, max_cluster, consensus, types):
-    """Keep mask and reasons from autoreject's labels and drops plus the cluster rule.
+    """Keep mask and reasons from the learnt labels and drops plus the cluster rule.
 
     Parameters
     ----------
     labels : ndarray, shape (n_epochs, n_channels)
-        autoreject's reject-log labels: 0 good, 1 beyond its threshold, 2 interpolated.
+        `LearntRejection.decide` labels: 0 good, 1 beyond its threshold, 2 interpolated.
     bad_epochs : ndarray of bool, shape (n_epochs,)
-        Epochs autoreject drops (consensus reached in some sensor type).
+        Epochs the consensus drops (reached in some sensor type).
     clusters : ndarray of int, shape (n_epochs,)
         Largest group of neighbouring interpolated channels (`interpolated_clusters`).
     max_cluster : int
@@ -310,111 +282,24 @@ def _decisions(labels, bad_epochs, clusters, max_cluster, consensus, types):
     return ~(by_consensus | by_cluster), reasons, by_consensus
 
 
-def _interpolate(analysis, info, interp, keep, dots=None):
-    """Interpolate each kept epoch's flagged channels in ``analysis`` (in place).
-
-    EEG channels: mne's spherical splines. MEG channels: the field mapping of autoreject
-    (minimum-norm over a sphere at `INTERPOLATION_ORIGIN`) with the lead-field dot
-    products it computed once while fitting (``dots``); computing them for every set of
-    bad channels, as mne's interpolate_bads does, costs about a second per set.
-    """
-    import mne
-
-    types = np.array(info.get_channel_types())
-    meg = np.flatnonzero(np.isin(types, MEG_SENSOR_TYPES))
-    meg_info = mne.pick_info(info, meg) if len(meg) else None
-    groups = {}
-    for e in np.flatnonzero(keep & interp.any(axis=1)):
-        groups.setdefault(tuple(np.flatnonzero(interp[e])), []).append(e)
-    for channels, epochs_idx in groups.items():
-        eeg_bads = [info["ch_names"][c] for c in channels if types[c] == "eeg"]
-        meg_bads = [info["ch_names"][c] for c in channels if types[c] != "eeg"]
-        if eeg_bads:
-            part = mne.EpochsArray(analysis[epochs_idx].copy(), info.copy(), verbose=False)
-            part.info["bads"] = eeg_bads
-            part.interpolate_bads(reset_bads=True, mode="accurate", origin=INTERPOLATION_ORIGIN,
-                                  verbose=False)
-            analysis[epochs_idx] = part.get_data(copy=True)
-        if meg_bads:
-            part = mne.EpochsArray(analysis[np.ix_(epochs_idx, meg)].copy(), meg_info.copy(), verbose=False)
-            part.info["bads"] = meg_bads
-            _field_interpolate(part, dots)
-            analysis[np.ix_(epochs_idx, meg)] = part.get_data(copy=True)
-    return len(groups)
-
-
-# The two places where heschl leans on autoreject internals: its MEG field interpolation
-# with precomputed dot products (not in autoreject's documented API) and the ``dots``
-# attribute its fit leaves. Kept to these two functions so that an autoreject release
-# that moves them breaks here, in one place; the performance work replaces both.
-def _field_interpolate(epochs, dots):
-    """Repair ``epochs.info["bads"]`` (MEG) in place with autoreject's field mapping."""
-    from autoreject.utils import interpolate_bads
-
-    interpolate_bads(epochs, picks=np.arange(len(epochs.ch_names)), dots=dots, reset_bads=True, mode="accurate")
-
-
-def _fitted_dots(model):
-    """The lead-field dot products a fitted AutoReject computed (None when it kept none)."""
-    return getattr(model, "dots", None)
-
-
-def _fit(detection, info, folds, random_state, n_jobs):
-    """Fit AutoReject on the detection epochs; return it, its reject log, the candidates."""
-    import mne
-    from autoreject import AutoReject
-    from threadpoolctl import threadpool_limits  # installed with scikit-learn (autoreject's)
-
-    # One set of candidates for every sensor type (autoreject takes one): the smallest
-    # type's channel count bounds it.
-    counts = [info.get_channel_types().count(t) for t in set(info.get_channel_types())]
-    candidates = interpolation_candidates(min(counts))
-    # Hyper-parameters are passed explicitly: AutoReject fills in and overwrites its own
-    # when given None, so what it chose is read from its fitted attributes only.
-    model = AutoReject(n_interpolate=np.array(candidates), consensus=np.array(CONSENSUS_CANDIDATES),
-                       cv=folds, random_state=random_state, n_jobs=n_jobs, verbose=False)
-    epochs = mne.EpochsArray(detection.copy(), info.copy(), verbose=False)  # keeps the array it gets
-    # The threshold search fits many tiny Gaussian processes; threaded BLAS only adds
-    # overhead there (measured: 10.5 s -> 7.4 s for 120 x 32 epochs on 2 cores).
-    with mne.utils.use_log_level("warning"), threadpool_limits(limits=1, user_api="blas"):
-        model.fit(epochs)
-        raised = _floor_thresholds(model, detection, info["ch_names"])
-        reject_log = model.get_reject_log(epochs)  # reads model.threshes_, floors included
-    return model, reject_log, candidates, raised
+def _fit(detection, info, folds, random_state):
+    """Fit `LearntRejection` on the detection epochs; return it and its repair."""
+    repair = ChannelRepair(info)
+    model = LearntRejection(consensus=CONSENSUS_CANDIDATES, cv=folds, random_state=random_state, fence=TUKEY_K)
+    return model.fit(detection, repair), repair
 
 
 def outlier_floor(peak_to_peak):
     """Upper Tukey fence (Q3 + `TUKEY_K` IQR) of each column of ``peak_to_peak``.
 
     A value inside the fences is not an outlier of its own channel's distribution
-    (Tukey 1977, docs/REFERENCES.md F45), so no learnt threshold is allowed below it.
+    (Tukey 1977, docs/REFERENCES.md F45), so no learnt threshold is allowed below it:
+    with many epochs of roughly Gaussian background and few artefacts the
+    cross-validated error barely changes with the threshold, and its minimum falls near
+    the median peak-to-peak of every channel (on a 64-channel recording written by an
+    independent generator, tests/gen2, 99 % of 1435 oddball epochs were dropped).
     """
-    q1, q3 = np.percentile(peak_to_peak, [25, 75], axis=0)
-    return q3 + TUKEY_K * (q3 - q1)
-
-
-def _floor_thresholds(model, detection, names):
-    """Raise each learnt threshold to its channel's `outlier_floor`; return what was raised.
-
-    autoreject's cross-validation compares the mean of the training epochs under a
-    threshold with the median of the validation epochs. With many epochs of roughly
-    Gaussian background and few artefacts, that score barely changes with the threshold,
-    and it picked limits near the median peak-to-peak of every channel: on a 64-channel
-    recording written by an independent generator (tests/gen2) 99 % of 1435 oddball
-    epochs were dropped. The floor keeps the learnt limit wherever it is above the
-    channel's own outlier fence, which is the case on recordings with real artefacts.
-    """
-    floors = outlier_floor(np.ptp(detection, axis=2))
-    raised = {}
-    for name, floor in zip(names, floors):
-        learnt = float(model.threshes_[name])
-        if floor > learnt:
-            model.threshes_[name] = float(floor)
-            raised[name] = learnt
-    # Each sensor type's fitted part votes with its own copy of the thresholds.
-    for part in getattr(model, "local_reject_", {}).values():
-        part.threshes_ = {n: model.threshes_[n] for n in part.threshes_}
-    return raised
+    return tukey_fence(peak_to_peak, TUKEY_K)
 
 
 # Threshold record key per sensor type; values in the type's display unit (uV, fT, fT/cm).
@@ -427,7 +312,7 @@ def _record(model, names, types, candidates, folds, max_cluster, source, keep, b
     thresholds = {}
     for kind in dict.fromkeys(types):
         key, factor = _THRESHOLD_KEYS[kind], DISPLAY[kind][1]
-        thresholds[key] = {n: float(model.threshes_[n]) * factor for n, t in zip(names, types) if t == kind}
+        thresholds[key] = {n: float(v) * factor for n, t, v in zip(names, types, model.thresholds_) if t == kind}
     return {
         **thresholds,
         "n_interpolate": {k: int(v) for k, v in model.n_interpolate_.items()},
@@ -468,16 +353,16 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
         An epoch whose largest group of neighbouring interpolated channels is larger is
         dropped.
     random_state : int, default=0
-        Seed of autoreject's threshold search.
+        Seed of the assignment of epochs to cross-validation folds.
     n_jobs : int, default=1
-        Parallel jobs for autoreject, with scikit-learn's meaning.
+        Accepted for callers of earlier releases; the search runs in one process.
     cv : int, default=5
         Cross-validation folds; fewer when there are less than 3 validation epochs per
         fold (at least `MIN_ADAPTIVE_EPOCHS` epochs are required).
     keep_labels : bool, default=False
         Also return the per-cell decisions as ``record["labels"]``: ndarray of int8,
-        shape (n_epochs, n_channels), autoreject's reject-log labels (0 good, 1 beyond its
-        threshold, 2 interpolated), for the QC page's decision image.
+        shape (n_epochs, n_channels), 0 good, 1 beyond its threshold, 2 interpolated, for
+        the QC page's decision image.
 
     Returns
     -------
@@ -504,22 +389,23 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
                                      "pass a positive number of channels, e.g. 3", key="max_cluster"))
     n_epochs = len(analysis)
     folds = _folds(n_epochs, cv)
-    model, reject_log, candidates, raised = _fit(detection, info, folds, random_state, n_jobs)
-    labels = np.nan_to_num(reject_log.labels, nan=0.0)
+    model, repair = _fit(detection, info, folds, random_state)
+    labels, bad_epochs = model.decide(detection)
     interp = labels == 2
     adjacency, names, source = _adjacency(info)
     types = info.get_channel_types()
     clusters = interpolated_clusters(interp, adjacency)
-    consensus = {k: float(v) for k, v in model.consensus_.items()}
-    keep, reasons, by_consensus = _decisions(labels, reject_log.bad_epochs, clusters, max_cluster, consensus,
-                                             types)
-    _interpolate(analysis, info, interp, keep, _fitted_dots(model))
-    record = _record(model, names, types, candidates, folds, max_cluster, source, keep, by_consensus, interp,
-                     clusters)
+    keep, reasons, by_consensus = _decisions(labels, bad_epochs, clusters, max_cluster, model.consensus_, types)
+    repair.apply(analysis, interp & keep[:, None])
+    record = _record(model, names, types, model.n_interpolate_candidates_, folds, max_cluster, source, keep,
+                     by_consensus, interp, clusters)
+    raised = model.thresholds_ > model.learnt_thresholds_
     record["threshold_floor"] = f"upper Tukey fence (Q3 + {TUKEY_K:g} IQR) of each channel's peak-to-peak values"
-    record["thresholds_raised"] = {n: float(raised[n]) * DISPLAY[t][1] for n, t in zip(names, types) if n in raised}
-    if raised:
-        log.info("Raised %d of %d learnt thresholds to their channel's outlier fence", len(raised), len(names))
+    record["thresholds_raised"] = {n: float(v) * DISPLAY[t][1] for n, t, v, r in
+                                   zip(names, types, model.learnt_thresholds_, raised) if r}
+    record["interpolation_matrices"] = int(repair.n_matrices)
+    if raised.any():
+        log.info("Raised %d of %d learnt thresholds to their channel's outlier fence", int(raised.sum()), len(names))
     if keep_labels:
         record["labels"] = labels.astype(np.int8)
     log.info("Adaptive rejection dropped %d of %d epochs (%.0f %%): %d by consensus, %d by "

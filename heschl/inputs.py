@@ -26,7 +26,7 @@ __all__ = ["Recording", "PIPELINE_REVISION", "read_participants", "discover", "r
 
 #: Bumped whenever a change of code changes what a recording's outputs are, so that
 #: resuming redoes recordings written by older code (the package version moves slower).
-PIPELINE_REVISION = 5
+PIPELINE_REVISION = 6
 
 
 @dataclass(frozen=True)

@@ -189,10 +189,12 @@ def interpolated_clusters(bad_mask, adjacency):
     return sizes
 
 
-def _check_arrays(epochs_data, detection_data, info):
-    analysis = np.array(epochs_data, dtype=float)  # copies: the caller's arrays stay as they are
-    detection = np.array(detection_data, dtype=float)
-    if analysis.ndim != 3 or analysis.shape != detection.shape:
+def _check_arrays(epochs_data, detection_data, info, rows=None):
+    # Not copied: both are only read; the kept epochs are copied before they are repaired.
+    analysis = np.asarray(epochs_data, dtype=float)
+    detection = np.asarray(detection_data, dtype=float)
+    shape = analysis.shape if rows is None else (len(rows),) + analysis.shape[1:]
+    if analysis.ndim != 3 or shape != detection.shape:
         raise InputDataError(problem(
             "adaptive_reject", f"epochs_data has shape {analysis.shape} and detection_data "
             f"{detection.shape}", "pass the same trials twice, each shaped "
@@ -203,7 +205,8 @@ def _check_arrays(epochs_data, detection_data, info):
             f"{info['nchan']}", "pass the info of the cut EEG channels, e.g. "
             "mne.pick_info(raw.info, mne.pick_types(raw.info, eeg=True))", key="info"))
     for name, x in (("epochs_data", analysis), ("detection_data", detection)):
-        if not np.all(np.isfinite(x)):
+        finite = np.isfinite(x).all(axis=(1, 2))
+        if not (finite if rows is None or x is detection else finite[np.asarray(rows)]).all():
             raise InputDataError(problem("adaptive_reject", f"{name} holds NaN or infinite values",
                                          "drop or repair those samples before rejection", key=name))
     return analysis, detection
@@ -336,13 +339,13 @@ def _record(model, names, types, candidates, folds, max_cluster, source, keep, b
 
 
 def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_state=0, n_jobs=1, cv=5,
-                    keep_labels=False):
+                    keep_labels=False, in_place=False, rows=None):
     """Learn per-channel thresholds on the detection data; drop and repair the analysis data.
 
     Parameters
     ----------
     epochs_data : ndarray, shape (n_epochs, n_channels, n_times), V
-        Analysis trials (e.g. high-passed at 0.1 Hz). Not modified.
+        Analysis trials (e.g. high-passed at 0.1 Hz). Not modified unless ``in_place``.
     detection_data : ndarray, shape (n_epochs, n_channels, n_times), V
         The same trials cut from a copy high-passed at 1 Hz; thresholds, interpolations
         and drops are learnt on these. Not modified.
@@ -363,11 +366,17 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
         Also return the per-cell decisions as ``record["labels"]``: ndarray of int8,
         shape (n_epochs, n_channels), 0 good, 1 beyond its threshold, 2 interpolated, for
         the QC page's decision image.
+    in_place : bool, default=False
+        Repair the kept epochs inside ``epochs_data`` (a writeable float64 array) and
+        return None for ``cleaned``: no copy of the trials.
+    rows : ndarray of int or None, default=None
+        With ``in_place``: the trials of ``epochs_data`` that ``detection_data`` holds
+        (in order); the others are neither judged nor changed. None: all.
 
     Returns
     -------
-    cleaned : ndarray, shape (n_kept, n_channels, n_times), V
-        Kept analysis epochs, flagged channels interpolated.
+    cleaned : ndarray, shape (n_kept, n_channels, n_times), V, or None
+        Kept analysis epochs, flagged channels interpolated (None with ``in_place``).
     keep : ndarray of bool, shape (n_epochs,)
     reasons : list of (str or None), length n_epochs
         None for kept epochs, else ``"adaptive: ..."``.
@@ -382,12 +391,15 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
         (largest cluster size as text -> epochs, among those consensus kept),
         ``interpolated`` (per epoch, the channels interpolated in it; empty if dropped).
     """
-    analysis, detection = _check_arrays(epochs_data, detection_data, info)
+    if rows is not None and not in_place:
+        raise InputDataError(problem("adaptive_reject", "rows is given without in_place",
+                                     "pass in_place=True with rows, or cut the trials first", key="rows"))
+    analysis, detection = _check_arrays(epochs_data, detection_data, info, rows)
     info = _data_info(info)
     if isinstance(max_cluster, bool) or not isinstance(max_cluster, (int, np.integer)) or max_cluster < 1:
         raise InputDataError(problem("adaptive_reject", f"max_cluster = {max_cluster!r}",
                                      "pass a positive number of channels, e.g. 3", key="max_cluster"))
-    n_epochs = len(analysis)
+    n_epochs = len(detection)
     folds = _folds(n_epochs, cv)
     model, repair = _fit(detection, info, folds, random_state)
     labels, bad_epochs = model.decide(detection)
@@ -396,7 +408,19 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
     types = info.get_channel_types()
     clusters = interpolated_clusters(interp, adjacency)
     keep, reasons, by_consensus = _decisions(labels, bad_epochs, clusters, max_cluster, model.consensus_, types)
-    repair.apply(analysis, interp & keep[:, None])
+    if in_place:
+        if not (isinstance(epochs_data, np.ndarray) and epochs_data.dtype == np.float64
+                and epochs_data.flags.writeable):
+            raise InputDataError(problem("adaptive_reject", "in_place needs a writeable float64 array",
+                                         "pass such an array or in_place=False", key="epochs_data"))
+        mask = interp & keep[:, None]
+        if rows is not None:
+            mask = np.zeros(epochs_data.shape[:2], dtype=bool)
+            mask[np.asarray(rows)] = interp & keep[:, None]
+        repair.apply(epochs_data, mask)
+        cleaned = None
+    else:
+        cleaned = repair.apply(analysis[keep], interp[keep])
     record = _record(model, names, types, model.n_interpolate_candidates_, folds, max_cluster, source, keep,
                      by_consensus, interp, clusters)
     raised = model.thresholds_ > model.learnt_thresholds_
@@ -412,4 +436,4 @@ def adaptive_reject(epochs_data, detection_data, info, *, max_cluster=3, random_
              "interpolated cluster; %d kept epochs have interpolated channels",
              record["n_dropped"], n_epochs, 100.0 * record["n_dropped"] / n_epochs,
              record["n_dropped_consensus"], record["n_dropped_cluster"], record["n_epochs_interpolated"])
-    return analysis[keep], keep, reasons, record
+    return cleaned, keep, reasons, record

@@ -140,7 +140,8 @@ class BadChannelDetector:
         pred = _predict(y, live)
         # A noisy channel is large *and* unexplained by the others: a strong physiological
         # rhythm (eyes-closed alpha at Oz) is large but its neighbours predict it.
-        unexplained = _robust_amplitude(y - pred)
+        unexplained = np.concatenate([_robust_amplitude(y[i:i + BLOCK] - pred[i:i + BLOCK])
+                                      for i in range(0, len(y), BLOCK)])  # no full-size residual
         z_amp, median = _robust_z(amp, live)
         z_res, _ = _robust_z(unexplained, live)
         self.unexplained_ = unexplained
@@ -205,9 +206,17 @@ class BadChannelDetector:
 FLAT_FLOOR = {"eeg": 0.5e-6}
 
 
+#: Channels per block where a step needs whole-recording temporaries (no full-size copies).
+BLOCK = 8
+
+
 def _robust_amplitude(x):
-    med = np.median(x, axis=1, keepdims=True)
-    return MAD_TO_SD * np.median(np.abs(x - med), axis=1)
+    out = np.empty(len(x))
+    for start in range(0, len(x), BLOCK):  # blocks of channels: no full-size temporaries
+        part = x[start:start + BLOCK]
+        med = np.median(part, axis=1, keepdims=True)
+        out[start:start + BLOCK] = MAD_TO_SD * np.median(np.abs(part - med), axis=1)
+    return out
 
 
 def _robust_z(values, live):
@@ -238,12 +247,16 @@ def _window_correlations(y, pred, width):
     """Correlation of each channel with its prediction in consecutive windows, shape (n_channels, n_windows)."""
     n_ch, n_times = y.shape
     n_win = max(1, n_times // width)
-    xs = y[:, :n_win * width].reshape(n_ch, n_win, -1)
-    ps = pred[:, :n_win * width].reshape(n_ch, n_win, -1)
-    xs = xs - xs.mean(axis=-1, keepdims=True)
-    ps = ps - ps.mean(axis=-1, keepdims=True)
-    denom = np.sqrt((xs ** 2).sum(-1) * (ps ** 2).sum(-1))
-    return np.where(denom > 0, (xs * ps).sum(-1) / np.where(denom > 0, denom, 1.0), 0.0)
+    out = np.empty((n_ch, n_win))
+    for start in range(0, n_ch, BLOCK):  # blocks of channels: no full-size temporaries
+        stop = min(start + BLOCK, n_ch)
+        xs = y[start:stop, :n_win * width].reshape(stop - start, n_win, -1)
+        ps = pred[start:stop, :n_win * width].reshape(stop - start, n_win, -1)
+        xs = xs - xs.mean(axis=-1, keepdims=True)
+        ps = ps - ps.mean(axis=-1, keepdims=True)
+        denom = np.sqrt((xs ** 2).sum(-1) * (ps ** 2).sum(-1))
+        out[start:stop] = np.where(denom > 0, (xs * ps).sum(-1) / np.where(denom > 0, denom, 1.0), 0.0)
+    return out
 
 
 def _poor_windows(r, live, poor_z, margin):
@@ -340,8 +353,8 @@ def _detection_copy(raw, picks):
     """Data for detection: a copy high-passed at 1 Hz so slow drifts do not dominate (common practice)."""
     import mne
 
-    x = raw.get_data(picks=picks)
-    return mne.filter.filter_data(x, raw.info["sfreq"], 1.0, None, verbose="error")
+    x = raw.get_data(picks=picks)  # a copy, filtered in place: one copy of the recording, not two
+    return mne.filter.filter_data(x, raw.info["sfreq"], 1.0, None, copy=False, verbose="error")
 
 
 def ocular_method(raw, policy):

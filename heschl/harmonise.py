@@ -85,6 +85,61 @@ def read_raw(path, notes=None, preload=True):
     return raw
 
 
+def read_for_run(path, site, paradigm, where, notes=None):
+    """Read a recording for ``heschl run``: the header, the markers, then the data channels.
+
+    Markers on a stimulus channel are read from the file before the data are loaded
+    (reading one channel is cheap), so that the stimulus channel is never loaded: picking
+    it out of loaded data copies the whole recording (2.6 s and 0.47 GB for a 15-minute
+    64-channel file at 1000 Hz; benchmarks/NOTES.md). When the markers cannot be read,
+    everything is loaded and `inspect` raises the same one-line reason as ``heschl check``.
+
+    Parameters
+    ----------
+    path : path-like
+    site, paradigm : heschl.config.Site, heschl.config.Paradigm
+    where : str
+        The file, for messages.
+    notes : list or None
+        As for `read_raw`.
+
+    Returns
+    -------
+    raw : mne.io.BaseRaw
+        Loaded.
+    markers : Markers or None
+        None when they could not be read (`inspect` will say why).
+    """
+    import warnings
+
+    import mne
+
+    path = Path(path)
+    raw = read_raw(path, notes=notes, preload=False)
+    markers = None
+    try:
+        with _reading(where):
+            markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where,
+                                      f"[sites.{site.name}.markers.{paradigm.name}]")
+    except InputDataError:
+        markers = None
+    if markers is not None:
+        stim = [raw.ch_names[i] for i in mne.pick_types(raw.info, stim=True, exclude=[])]
+        if stim and len(stim) < len(raw.ch_names):
+            raw.drop_channels(stim)
+    try:
+        with warnings.catch_warnings(record=True) as said:
+            warnings.simplefilter("always")
+            raw.load_data(verbose="warning")
+    except Exception as exc:  # as in read_raw: one line
+        raise InputDataError(_unreadable(path, exc)) from None
+    if notes is not None:
+        known = {n.get("words") for n in notes}
+        notes.extend(n for n in reader_notes(path, raw, [_plain(str(w.message), path) for w in said])
+                     if n["kind"] == "reader" and n["words"] not in known)
+    return raw, markers
+
+
 def check_file(path):
     """The checks of a recording's main file that need no reader: a supported type, a file
     (not a folder, not a broken link), not empty. One line otherwise."""
@@ -289,7 +344,7 @@ def extract_markers(raw, code_map, delay, where, section="[sites.<site>.markers.
     return Markers(np.asarray(keep_on)[order], [keep_lab[i] for i in order], unknown)
 
 
-def inspect(raw, site, paradigm, common_channels, where):
+def inspect(raw, site, paradigm, common_channels, where, markers=None):
     """Every rule of harmonising that the header and a cheap read of the data decide.
 
     One code path for ``heschl run`` (through `harmonise`) and ``heschl check``: whatever
@@ -309,6 +364,8 @@ def inspect(raw, site, paradigm, common_channels, where):
         The study's channel set; empty keeps every EEG channel.
     where : str
         The file, for messages.
+    markers : Markers or None
+        Already read from the file (`read_for_run`); None reads them here.
 
     Returns
     -------
@@ -325,9 +382,10 @@ def inspect(raw, site, paradigm, common_channels, where):
     record = {"file_sampling_rate": float(raw.info["sfreq"]), "file_channels": list(raw.ch_names),
               "duration_s": float(raw.n_times / raw.info["sfreq"])}
     _check_length(record["duration_s"], paradigm, where)
-    with _reading(where):
-        markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where,
-                                  f"[sites.{site.name}.markers.{paradigm.name}]")
+    if markers is None:
+        with _reading(where):
+            markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where,
+                                      f"[sites.{site.name}.markers.{paradigm.name}]")
     _check_conditions(markers, paradigm, site, where)
     record["trigger_delay_s"] = site.trigger_delay
     renamed = canonical_channel_names(raw.ch_names, site.channel_aliases)
@@ -378,7 +436,7 @@ def inspect(raw, site, paradigm, common_channels, where):
     return markers, record
 
 
-def harmonise(raw, site, paradigm, common_channels, where):
+def harmonise(raw, site, paradigm, common_channels, where, markers=None):
     """Names, types, montage, reference channel, channel set and rate, in that order.
 
     The rules come from `inspect` (shared with ``heschl check``); this applies them.
@@ -393,6 +451,8 @@ def harmonise(raw, site, paradigm, common_channels, where):
         The study's channel set; empty keeps every EEG channel.
     where : str
         The file, for messages.
+    markers : Markers or None
+        Already read (`read_for_run`), else read here.
 
     Returns
     -------
@@ -401,7 +461,7 @@ def harmonise(raw, site, paradigm, common_channels, where):
     record : dict
         What was found and changed.
     """
-    markers, record = inspect(raw, site, paradigm, common_channels, where)
+    markers, record = inspect(raw, site, paradigm, common_channels, where, markers=markers)
     renamed = record["renamed"]
     if renamed:
         log.info("Renamed %d channel%s (%s)", len(renamed), "" if len(renamed) == 1 else "s",
@@ -654,8 +714,14 @@ def _pick_common(raw, common):
     keep = list(common) if common else eeg
     other = [n for n in raw.ch_names if n in set(
         raw.ch_names[i] for i in mne.pick_types(raw.info, eeg=False, eog=True, meg=True))]
-    raw.pick(keep + [n for n in other if n not in keep], verbose="error")
-    raw.reorder_channels(keep + [n for n in raw.ch_names if n not in keep])
+    # mne copies the whole recording for a pick or a reordering, even one that changes
+    # nothing (0.47 GB for a 15-minute 64-channel file at 1000 Hz): only when needed.
+    wanted = keep + [n for n in other if n not in keep]
+    if wanted != list(raw.ch_names):
+        if set(wanted) != set(raw.ch_names):
+            raw.pick(wanted, verbose="error")
+        if list(raw.ch_names) != wanted:
+            raw.reorder_channels(wanted)
 
 
 def _positions_measured(raw, names):

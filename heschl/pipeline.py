@@ -57,7 +57,7 @@ def _process(study, recording, hashes):
     from .arrays import recording_arrays
     from .clean import clean
     from .features import Source, applicable, compute_features
-    from .harmonise import harmonise, read_raw
+    from .harmonise import harmonise, read_for_run
     from .qc import quality_record
     from .qc.evidence import OcularWatch, channel_spectra, recording_evidence, spectrum_limit
 
@@ -69,13 +69,14 @@ def _process(study, recording, hashes):
     definitions = definitions_of(study, recording)
     key = input_key(hashes, definitions)
     reader = []   # what the reader said about the file (warnings, truncation)
-    raw = read_raw(recording.path, notes=reader)  # an unreadable file ends here, without a page
+    # An unreadable file ends here, without a page.
+    raw, early_markers = read_for_run(recording.path, site, paradigm, where, notes=reader)
     clock.lap("read")
     # What the stages found so far, for the page of a recording that turns out unusable.
     found = {"stage": "harmonise", "raw": raw, "harmonised": None, "cleaning": None, "spectra_before": None,
              "fmax": spectrum_limit(raw.info["sfreq"], site.line_frequency)}
     try:
-        raw, markers, harmonised = harmonise(raw, site, paradigm, study.common_channels, where)
+        raw, markers, harmonised = harmonise(raw, site, paradigm, study.common_channels, where, markers=early_markers)
         harmonised["reader_notes"] = reader
         found.update(raw=raw, harmonised=harmonised, stage="channels")
         analysis, skipped_sets = applicable(analysis, harmonised["channels"], where,
@@ -190,11 +191,15 @@ def _segment_and_reject(raw, markers, paradigm, cleaning):
         # a 0.1 Hz analysis high-pass would otherwise inflate the thresholds' rejections.
         copy = raw.copy().filter(paradigm.rejection.detection_high_pass, None, picks=picks, verbose="error")
         detection, _, _ = cut(copy, plan, window, picks)
+        del copy  # only its trials are needed
         info = mne.pick_info(raw.info, picks)
     ocular = cleaning.get("ocular") or {}
     corrected = ocular.get("method") not in (None, "none") and not ocular.get("skipped_reason")
     blinks = None if corrected else _blink_stretches(raw)
     dropped = _stretch_drops(entries, window, cleaning, len(x), blinks)
+    if detection is not None and any(r is not None for r in dropped):
+        # Only the trials the rejection method will meet: the full array is freed here.
+        detection = detection[[i for i, r in enumerate(dropped) if r is None]]
     data, entries, record = reject(x, times, entries, ch_names, paradigm, baseline, detection, info,
                                    types_of(raw.info, picks), dropped=dropped)
     record["kept_blinks"] = None if corrected else kept_blinks(raw, entries, window)

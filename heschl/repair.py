@@ -126,16 +126,20 @@ class ChannelRepair:
                 x[np.ix_(epochs, bad)] = np.einsum("bg,egt->ebt", m, x[np.ix_(epochs, good)])
         return x
 
-    def leave_one_out(self, x):
-        """Every channel interpolated from the other channels of its kind; a new array."""
-        out = np.empty_like(x)
-        for pool in (self._eeg, self._meg):
-            if not len(pool):
-                continue
-            square = np.zeros((len(pool), x.shape[1]))
-            for i, c in enumerate(pool):
-                bad, good, m = self.matrix((c,))
-                square[i, good] = m[0]
-            sub = square[:, pool]
-            out[:, pool] = np.einsum("cg,egt->ect", sub, x[:, pool], optimize=True)
-        return out
+    def leave_one_out(self, x, channels):
+        """Channels ``channels`` of every epoch, each interpolated from the other channels of its kind.
+
+        Parameters
+        ----------
+        x : ndarray, shape (n_epochs, n_channels, n_times)
+        channels : sequence of int
+
+        Returns
+        -------
+        ndarray, shape (n_epochs, len(channels), n_times)
+        """
+        weights = np.zeros((len(channels), x.shape[1]))
+        for i, c in enumerate(channels):
+            _, good, m = self.matrix((c,))
+            weights[i, good] = m[0]
+        return np.matmul(weights, x)  # one small product per epoch; no copy of the epochs

@@ -124,7 +124,9 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
     Parameters
     ----------
     x : ndarray, shape (n_cut, n_channels, n_times), V
-        Analysis data of the cut trials.
+        Analysis data of the cut trials: baseline-corrected and repaired in place when it
+        is a writeable float64 array (a copy of the trials fewer; the pipeline does not
+        reuse it).
     times : ndarray, s
     entries : list of dict
         The trial log from :func:`cut`.
@@ -155,7 +157,10 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
     """
     if baseline is not None and len(x):
         sel = (times >= baseline[0]) & (times <= baseline[1])
-        x = x - x[:, :, sel].mean(axis=2, keepdims=True)
+        if x.flags.writeable and x.dtype == np.float64:
+            x -= x[:, :, sel].mean(axis=2, keepdims=True)  # in place: no second copy of the trials
+        else:
+            x = x - x[:, :, sel].mean(axis=2, keepdims=True)
     keep, reasons, record, x = _decide_rest(x, detection, ch_names, paradigm, info,
                                             types or ["eeg"] * len(ch_names), dropped)
     data = {c: [] for c in paradigm.conditions}
@@ -189,16 +194,16 @@ def _decide_rest(x, detection, ch_names, paradigm, info, types, dropped):
         return keep, reasons, record, x
     rest = np.array([r is None for r in dropped], dtype=bool)
     idx = np.flatnonzero(rest)
-    part_keep, part_reasons, record = _decide(x[idx], None if detection is None else detection[idx], ch_names,
-                                              paradigm, info, types)
+    if detection is not None and len(detection) != len(idx):
+        detection = detection[idx]  # else the caller passed the detection trials of these rows only
+    part_keep, part_reasons, record = _decide(x, detection, ch_names, paradigm, info, types, rows=idx)
     keep = np.zeros(len(x), dtype=bool)
     keep[idx] = part_keep
     reasons = list(dropped)
     for i, r in zip(idx, part_reasons):
         reasons[i] = r
     if record.get("interpolated_epochs") is not None:
-        x = x.copy()
-        x[idx] = record.pop("interpolated_epochs")
+        x = record.pop("interpolated_epochs")  # repaired in place, rows idx
     if record.get("interpolated") is not None:
         full = [[] for _ in range(len(x))]
         for i, names in zip(idx, record["interpolated"]):
@@ -221,38 +226,37 @@ def _fixed_limits(rejection, types):
     return limits, shown
 
 
-def _decide(x, detection, ch_names, paradigm, info, types):
-    """keep mask, reason per trial, and a record, by the paradigm's method."""
+def _decide(x, detection, ch_names, paradigm, info, types, rows=None):
+    """keep mask, reason per trial, and a record, by the paradigm's method, for the trials
+    ``rows`` of ``x`` (all when None; no copy of them is made)."""
     method = paradigm.rejection.method
-    keep = np.ones(len(x), dtype=bool)
-    reasons = [None] * len(x)
-    if method == "fixed" and len(x):
+    n = len(x) if rows is None else len(rows)
+    keep = np.ones(n, dtype=bool)
+    reasons = [None] * n
+    if method == "fixed" and n:
         limits, shown = _fixed_limits(paradigm.rejection, types)
-        ptp = peak_to_peak(x)
+        ptp = peak_to_peak(x) if rows is None else peak_to_peak(x)[rows]
         keep, found = fixed_threshold(ptp, limits, ch_names, types=types)
         reasons = ["peak-to-peak: " + "; ".join(r.replace("peak-to-peak ", "", 1) for r in found[i])
-                   for i in range(len(x))]
+                   for i in range(n)]
         record = {"method": "fixed", "limits": shown}
         # Which cells were beyond their limit (fixed_threshold's rule), for the QC page's
         # decision image; the pipeline takes it out of the record before provenance.
         record["cell_labels"] = (~np.isfinite(ptp) | (ptp > limits)).astype(np.int8)
-        log.info("Fixed peak-to-peak limits dropped %d of %d trial%s", int((~keep).sum()), len(x),
-                 "" if len(x) == 1 else "s")
+        log.info("Fixed peak-to-peak limits dropped %d of %d trial%s", int((~keep).sum()), n, "" if n == 1 else "s")
         if "eeg" in types:
             record["peak_to_peak_uv"] = paradigm.rejection.peak_to_peak * 1e6
         return keep, reasons, record
     if method == "adaptive":
-        if len(x) < MIN_ADAPTIVE_EPOCHS:
-            return keep, reasons, {"method": "adaptive", "skipped": f"only {len(x)} trials; "
+        if n < MIN_ADAPTIVE_EPOCHS:
+            return keep, reasons, {"method": "adaptive", "skipped": f"only {n} trials; "
                                    f"adaptive thresholds need at least {MIN_ADAPTIVE_EPOCHS}"}
         from .adaptive import adaptive_reject
 
-        cleaned, keep, found, record = adaptive_reject(x, detection, info,
-                                                       max_cluster=paradigm.rejection.max_cluster,
-                                                       random_state=0, n_jobs=1, keep_labels=True)
-        full = x.copy()
-        full[keep] = cleaned
-        record = dict(record, method="adaptive", interpolated_epochs=full, cell_labels=record.pop("labels"))
+        _, keep, found, record = adaptive_reject(x, detection, info, max_cluster=paradigm.rejection.max_cluster,
+                                                 random_state=0, n_jobs=1, keep_labels=True, in_place=True,
+                                                 rows=rows)
+        record = dict(record, method="adaptive", interpolated_epochs=x, cell_labels=record.pop("labels"))
         return keep, list(found), record
     return keep, reasons, {"method": "none"}
 

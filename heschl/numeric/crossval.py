@@ -29,8 +29,9 @@ and its minimum falls near the median epoch, which would repair nearly every epo
 
 Arrays are in SI units; shapes are documented per method. The repair itself is passed in
 (``repair``): an object with ``types`` (sensor type per channel), ``apply(x, mask)``
-(interpolate ``mask``-ed cells of ``x`` in place) and ``leave_one_out(x)`` (every channel
-interpolated from the others); `heschl.repair.ChannelRepair` builds one from mne's info.
+(interpolate ``mask``-ed cells of ``x`` in place and return ``x``) and
+``leave_one_out(x, channels)`` (those channels of every epoch interpolated from the others);
+`heschl.repair.ChannelRepair` builds one from mne's info.
 """
 from __future__ import annotations
 
@@ -220,15 +221,16 @@ class LearntRejection:
         cv = int(self.cv)
         folds = _fold_ids(len(x), cv, self.random_state)
         ptp = np.ptp(x, axis=2)
-        interpolated = repair.leave_one_out(x) if self.augment else None
         learnt = np.empty(x.shape[1])
         both = np.concatenate([folds, folds])
-        for c in range(x.shape[1]):
-            if interpolated is None:
-                learnt[c] = _channel_threshold(x[:, c], folds, cv)
-            else:
-                learnt[c] = _channel_threshold(np.concatenate([x[:, c], interpolated[:, c]]), both, cv)
-        del interpolated
+        block = 16  # channels interpolated at once: a copy of all of them would double the memory
+        for start in range(0, x.shape[1], block):
+            chunk = list(range(start, min(start + block, x.shape[1])))
+            others = repair.leave_one_out(x, chunk) if self.augment else None
+            for i, c in enumerate(chunk):
+                learnt[c] = (_channel_threshold(x[:, c], folds, cv) if others is None else
+                             _channel_threshold(np.concatenate([x[:, c], others[:, i]]), both, cv))
+            del others
         self.learnt_thresholds_ = learnt
         self.thresholds_ = learnt.copy() if self.fence is None else np.maximum(learnt, tukey_fence(ptp, self.fence))
         self.types_ = types
@@ -249,25 +251,34 @@ class LearntRejection:
 
     @staticmethod
     def _type_loss(x, repair, bad, ptp, cols, folds, cv, rhos, kappas):
+        """Validation errors (n_kappa, n_rho, cv) of one sensor type.
+
+        The training means need, per fold and per count of bad channels, the sum of the
+        (repaired) epochs: the sums of the original epochs are taken once, and each rho
+        only adds what its repairs change, computed on the epochs it repairs.
+        """
         from scipy import sparse
 
         n, width = len(cols), x.shape[2]
         counts = bad[:, cols].sum(axis=1)
-        medians = [np.median(x[folds == f][:, cols], axis=0) for f in range(cv)]
+        medians = [np.median(x[folds == f][:, cols], axis=0).ravel() for f in range(cv)]
         cells = folds * (n + 1) + counts
         tally = np.bincount(cells, minlength=cv * (n + 1)).reshape(cv, n + 1)
         group = sparse.csr_array((np.ones(len(x)), (cells, np.arange(len(x)))), shape=(cv * (n + 1), len(x)))
+        plain = group @ (x if len(cols) == x.shape[1] else x[:, cols]).reshape(len(x), -1)
         loss = np.full((len(kappas), len(rhos), cv), np.inf)
         for j, rho in enumerate(rhos):
-            mask = np.zeros_like(bad)
-            mask[:, cols] = interpolation_mask(bad[:, cols], ptp[:, cols], rho)
-            fixed = x[:, cols].copy()
-            if mask.any():
-                full = x.copy()
-                repair.apply(full, mask)
-                fixed = full[:, cols]
-                del full
-            sums = (group @ fixed.reshape(len(x), -1)).reshape(cv, n + 1, n * width)
+            mask = interpolation_mask(bad[:, cols], ptp[:, cols], rho)
+            rows = np.flatnonzero(mask.any(axis=1))
+            sums = plain
+            if len(rows):
+                full = np.zeros((len(rows), x.shape[1]), dtype=bool)
+                full[:, cols] = mask[rows]
+                fixed = repair.apply(x[rows], full)[:, cols]
+                change = (fixed - x[rows][:, cols]).reshape(len(rows), -1)
+                sums = plain + group[:, rows] @ change
+                del fixed, change
+            sums = sums.reshape(cv, n + 1, n * width)
             for i, kappa in enumerate(kappas):
                 if kappa * n <= rho:
                     continue
@@ -278,7 +289,7 @@ class LearntRejection:
                     if k == 0:
                         continue
                     mean = (total - sums[f, good].sum(axis=0)) / k
-                    loss[i, j, f] = np.sqrt(np.mean((medians[f].ravel() - mean) ** 2))
+                    loss[i, j, f] = np.sqrt(np.mean((medians[f] - mean) ** 2))
         return loss
 
     def decide(self, x):

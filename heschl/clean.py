@@ -432,6 +432,9 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
 
         courses = muscle_courses(raw)
     record["filter"] = filter_pass_band(raw, paradigm.cleaning.pass_band)
+    from .memory import give_back
+
+    give_back()  # the filters' freed per-channel temporaries (heschl.memory)
     names = [raw.ch_names[i] for i in picks]
     groups = by_type(types_of(raw.info, picks))
     bads = {c: "marked bad in the study file" for c in forced_bads if c in names}
@@ -475,9 +478,10 @@ def clean(raw, paradigm, forced_bads=(), where="recording", restored=None, line_
     method = ocular_method(raw, paradigm.cleaning.ocular)
     if watch is not None:
         watch("before-ocular", raw, None)
+    give_back()  # the detector's and the repairs' freed temporaries (heschl.memory)
     ocular = OcularCorrection(method).fit(raw)
     if method != "none":
-        raw[:, :] = ocular.apply(raw).get_data()
+        ocular.apply(raw, copy=False)
     if watch is not None:
         watch("after-ocular", raw, ocular)
     record["ocular"] = dict(ocular.record(), policy=paradigm.cleaning.ocular)

@@ -485,6 +485,9 @@ def harmonise(raw, site, paradigm, common_channels, where, markers=None):
         # through mne), in time linear in the recording's length; the FFT method
         # transforms the whole recording at once (3.6 s of a 15-minute oddball, and
         # a complex copy of it in memory; benchmarks/NOTES.md).
+        from .memory import give_back
+
+        give_back()  # the freed temporaries of the checks above, before the largest step
         raw.resample(target, method="polyphase", verbose="error")
     record["sampling_rate"] = float(raw.info["sfreq"])
     picks = data_picks(raw.info)

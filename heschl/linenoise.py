@@ -189,17 +189,38 @@ def channel_line_amplitudes(raw, frequency, picks, bandwidth=1.0):
     sfreq = float(raw.info["sfreq"])
     if not 0 < frequency - _NEIGHBOURS[1] < frequency + _NEIGHBOURS[1] < sfreq / 2:
         return None
-    step, psd, band, ring = _band_and_ring(raw.get_data(picks=picks), sfreq, frequency, bandwidth, _NEIGHBOURS,
-                                           "channel_line_amplitudes")
-    excess = (psd[:, band] - psd[:, ring].mean(axis=-1, keepdims=True)).sum(axis=-1) * step
-    return np.sqrt(np.maximum(excess, 0.0))
+    out = []
+    for block in _blocks(raw, picks):  # a few channels at a time: Welch's segments are large
+        step, psd, band, ring = _band_and_ring(raw.get_data(picks=block), sfreq, frequency, bandwidth, _NEIGHBOURS,
+                                               "channel_line_amplitudes")
+        excess = (psd[:, band] - psd[:, ring].mean(axis=-1, keepdims=True)).sum(axis=-1) * step
+        out.append(np.sqrt(np.maximum(excess, 0.0)))
+    return np.concatenate(out) if out else np.zeros(0)
+
+
+#: Channels per block for the spectra of the whole recording: Welch's segments of all
+#: channels at once are twice the recording in memory.
+BLOCK = 8
+
+
+def _blocks(raw, picks):
+    """Channel indices of ``picks`` (types or names, as mne's ``picks`` accepts), in blocks."""
+    types = raw.get_channel_types()
+    wanted = [picks] if isinstance(picks, str) else list(picks)
+    if all(isinstance(w, str) and w in set(types) | {"eeg", "eog", "mag", "grad", "meg"} for w in wanted):
+        kinds = set(wanted) | ({"mag", "grad"} if "meg" in wanted else set())
+        idx = [i for i, kind in enumerate(types) if kind in kinds]  # mne's order for types: the file's
+    else:
+        idx = [int(w) if not isinstance(w, str) else raw.ch_names.index(w) for w in wanted]  # as given
+    return [idx[i:i + BLOCK] for i in range(0, len(idx), BLOCK)]
 
 
 def _median_ratio(raw, frequency, picks):
     sfreq = float(raw.info["sfreq"])
     if not 0 < frequency - _NEIGHBOURS[1] < frequency + _NEIGHBOURS[1] < sfreq / 2:
         return None
-    ratio = line_noise_ratio(raw.get_data(picks=picks), sfreq, frequency, neighbours=_NEIGHBOURS)
+    ratio = np.concatenate([line_noise_ratio(raw.get_data(picks=block), sfreq, frequency, neighbours=_NEIGHBOURS)
+                            for block in _blocks(raw, picks)] or [np.zeros(0)])
     # A channel without power (a restored recording reference is all zeros before
     # re-referencing) has no ratio; the median is over the channels that have one.
     ratio = ratio[np.isfinite(ratio)]

@@ -243,13 +243,15 @@ class OcularCorrection:
                  self.residual_correlation_["after"])
         return self
 
-    def apply(self, raw):
-        """Return a corrected copy of ``raw`` (``raw`` itself is not changed).
+    def apply(self, raw, copy=True):
+        """Return a corrected copy of ``raw`` (``raw`` itself is not changed), or correct
+        ``raw`` itself with ``copy=False`` (no second copy of the recording).
 
         Parameters
         ----------
         raw : mne.io.BaseRaw
             Preloaded data with the channels seen in `fit`, V.
+        copy : bool, default=True
 
         Returns
         -------
@@ -257,7 +259,7 @@ class OcularCorrection:
         """
         if not hasattr(self, "sources_"):
             raise ProcessingError(problem(_WHERE, "apply was called before fit", "call fit(raw) first"))
-        out = raw.copy()
+        out = raw.copy() if copy else raw
         if self.method == "none" or self.skipped_reason_:
             return out
         missing = [n for n in self.corrected_channels_ + self.sources_ if n not in raw.ch_names]
@@ -440,7 +442,8 @@ class OcularCorrection:
         ica.exclude = [e["component"] for e in self.excluded_]
         self.ica_ = ica
         log.info("ICA: removed %d of %d components (%s)", len(self.excluded_), self.n_components_, rule)
-        corrected = ica.apply(hp.copy(), verbose="error") if self.excluded_ else hp
+        # In place: hp is fit's own high-passed copy and not used after this.
+        corrected = ica.apply(hp, verbose="error") if self.excluded_ else hp
         return corrected.get_data(picks=self.measured_channels_)
 
 

@@ -172,3 +172,24 @@ def test_a_channel_of_zeros_does_not_hide_line_noise(rng):
     raw._data[3] = 0.0
     record = remove_line_noise(raw, 50.0, method="none")
     assert record["ratio_before"] > 20 and record["ratio_after"] == record["ratio_before"]
+
+
+def test_spectra_in_channel_blocks_equal_the_whole_array(rng):
+    # The line measures read a few channels at a time (memory); each channel's Welch
+    # spectrum is its own, so the blocks give exactly what the whole array gives.
+    from heschl.linenoise import BLOCK, _NEIGHBOURS, channel_line_amplitudes
+
+    n = 2 * BLOCK + 3
+    info = mne.create_info([f"E{i}" for i in range(n)] + ["EOG"], 250.0, ["eeg"] * n + ["eog"])
+    t = np.arange(250 * 30) / 250.0
+    x = (rng.normal(scale=5e-6, size=(n + 1, t.size))
+         + 2e-6 * rng.uniform(0.5, 2, (n + 1, 1)) * np.sin(2 * np.pi * 50 * t))
+    raw = mne.io.RawArray(x, info, verbose="error")
+    whole = line_noise_ratio(x[:n], 250.0, 50.0, neighbours=_NEIGHBOURS)
+    from heschl.linenoise import _median_ratio
+
+    assert _median_ratio(raw, 50.0, "eeg") == float(np.median(whole))
+    order = list(range(n))[::-1]
+    blocked = channel_line_amplitudes(raw, 50.0, order)
+    one = np.concatenate([channel_line_amplitudes(raw, 50.0, [i]) for i in order])
+    np.testing.assert_array_equal(blocked, one)

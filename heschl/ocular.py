@@ -227,12 +227,13 @@ class OcularCorrection:
             return self
         src = self._source_data(hp)
         target = hp.get_data(picks=self.measured_channels_)
+        before = np.abs(_correlations(target, src)).max(axis=0)
         if self.method == "regression":
             self.coef_ = _propagation(target, src)
             after = target - self.coef_ @ src
         else:
+            del target  # not needed by ICA: one copy of the recording fewer while it fits
             after = self._fit_ica(hp, eeg, src)
-        before = np.abs(_correlations(target, src)).max(axis=0)
         after = np.abs(_correlations(after, src)).max(axis=0)
         self.residual_correlation_ = {
             "before": float(before.max()), "after": float(after.max()),

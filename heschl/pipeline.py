@@ -192,8 +192,11 @@ def _segment_and_reject(raw, markers, paradigm, cleaning):
     if paradigm.rejection.method == "adaptive":
         # Learn rejection on a copy high-passed for detection: slow ERP components kept by
         # a 0.1 Hz analysis high-pass would otherwise inflate the thresholds' rejections.
-        copy = raw.copy().filter(paradigm.rejection.detection_high_pass, None, picks=picks, verbose="error")
-        detection, _, _ = cut(copy, plan, window, picks)
+        # The data channels only, filtered in place (mne's filter_data with raw.filter's
+        # defaults), and their trials cut from that array: no copy of the whole raw.
+        copy = mne.filter.filter_data(raw.get_data(picks=picks), raw.info["sfreq"],
+                                      paradigm.rejection.detection_high_pass, None, copy=False, verbose="error")
+        detection, _, _ = cut(raw, plan, window, picks, data=copy)
         del copy  # only its trials are needed
         info = mne.pick_info(raw.info, picks)
     ocular = cleaning.get("ocular") or {}

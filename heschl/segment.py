@@ -64,7 +64,7 @@ def fractional_delay_kernel(delta, half=_HALF, beta=8.0):
     return taps / taps.sum()
 
 
-def cut(raw, plan, window, picks=None):
+def cut(raw, plan, window, picks=None, data=None):
     """Cut trials from continuous data, aligned to the marker with sub-sample precision.
 
     Markers rarely fall on the analysis rate's sample grid (they were sampled at the
@@ -80,6 +80,9 @@ def cut(raw, plan, window, picks=None):
     window : (tmin, tmax), s
     picks : array of int or None
         Channels to cut; None cuts the data channels (EEG, magnetometers, gradiometers).
+    data : ndarray, shape (len(picks), raw.n_times), or None
+        The continuous data of ``picks`` to cut instead of ``raw``'s (e.g. a filtered
+        copy of them); None reads them from ``raw``.
 
     Returns
     -------
@@ -94,12 +97,13 @@ def cut(raw, plan, window, picks=None):
         from .sensors import data_picks
 
         picks = data_picks(raw.info)
-    data = raw.get_data(picks=picks)
+    if data is None:
+        data = raw.get_data(picks=picks)
     sfreq = raw.info["sfreq"]
     start = int(round(window[0] * sfreq))
     n_times = int(round((window[1] - window[0]) * sfreq)) + 1
     times = (start + np.arange(n_times)) / sfreq
-    pieces, entries = [], []
+    entries, where = [], []
     for onset, cond, reason in plan:
         position = onset * sfreq
         base = int(np.floor(position + 1e-9))
@@ -108,12 +112,14 @@ def cut(raw, plan, window, picks=None):
         if reason is None and (first < 0 or first + n_times + 2 * _HALF > data.shape[1]):
             entry["reason"] = "outside the recording: window reaches past the data"
         if entry["reason"] is None:
-            entry["index"] = len(pieces)
-            segment = data[:, first:first + n_times + 2 * _HALF]
-            taps = fractional_delay_kernel(max(0.0, position - base))
-            pieces.append(sliding_window_view(segment, 2 * _HALF + 1, axis=1) @ taps)
+            entry["index"] = len(where)
+            where.append((first, position - base))
         entries.append(entry)
-    x = np.stack(pieces) if pieces else np.empty((0, len(picks), n_times))
+    x = np.empty((len(where), len(picks), n_times))  # filled in place: no list of pieces to stack
+    for i, (first, fraction) in enumerate(where):
+        segment = data[:, first:first + n_times + 2 * _HALF]
+        taps = fractional_delay_kernel(max(0.0, fraction))
+        np.matmul(sliding_window_view(segment, 2 * _HALF + 1, axis=1), taps, out=x[i])
     return x, times, entries
 
 

@@ -204,9 +204,11 @@ def _check_arrays(epochs_data, detection_data, info, rows=None):
             "adaptive_reject", f"the data have {analysis.shape[1]} channels but info has "
             f"{info['nchan']}", "pass the info of the cut EEG channels, e.g. "
             "mne.pick_info(raw.info, mne.pick_types(raw.info, eeg=True))", key="info"))
-    for name, x in (("epochs_data", analysis), ("detection_data", detection)):
-        finite = np.isfinite(x).all(axis=(1, 2))
-        if not (finite if rows is None or x is detection else finite[np.asarray(rows)]).all():
+    judged = np.isfinite(analysis).all(axis=(1, 2))
+    if rows is not None:
+        judged = judged[np.asarray(rows)]  # the other trials are neither judged nor repaired
+    for name, finite in (("epochs_data", judged), ("detection_data", np.isfinite(detection).all(axis=(1, 2)))):
+        if not finite.all():
             raise InputDataError(problem("adaptive_reject", f"{name} holds NaN or infinite values",
                                          "drop or repair those samples before rejection", key=name))
     return analysis, detection

@@ -70,19 +70,35 @@ def read_raw(path, notes=None, preload=True):
         with warnings.catch_warnings(record=True) as said:
             warnings.simplefilter("always")
             raw = mne.io.read_raw(path, preload=False, verbose="warning")
-            if raw.n_times == 0:
-                raise InputDataError(problem(display_path(path), "holds no samples (its header lists channels but no "
-                                             "data)", "copy the recording again from its source; its data part "
-                                             "is empty"))
-            if preload:
-                raw.load_data(verbose="warning")
-    except HeschlError:
-        raise
     except Exception as exc:  # readers raise many kinds; the user needs one line
         raise InputDataError(_unreadable(path, exc)) from None
+    if raw.n_times == 0:
+        raise InputDataError(problem(display_path(path), "holds no samples (its header lists channels but no "
+                                     "data)", "copy the recording again from its source; its data part is empty"))
+    words = [_plain(str(w.message), path) for w in said] + (_load(raw, path) if preload else [])
     if notes is not None:
-        notes.extend(reader_notes(path, raw, [_plain(str(w.message), path) for w in said]))
+        notes.extend(reader_notes(path, raw, words))
     return raw
+
+
+def _load(raw, path):
+    """Load an opened recording's data; the reader's warnings, as messages show them."""
+    import warnings
+
+    try:
+        with warnings.catch_warnings(record=True) as said:
+            warnings.simplefilter("always")
+            raw.load_data(verbose="warning")
+    except Exception as exc:  # as at opening: one line
+        raise InputDataError(_unreadable(path, exc)) from None
+    return [_plain(str(w.message), path) for w in said]
+
+
+def _markers(raw, site, paradigm, where):
+    """The paradigm's markers in ``raw`` by the site's map; read failures in one line."""
+    with _reading(where):
+        return extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where,
+                               f"[sites.{site.name}.markers.{paradigm.name}]")
 
 
 def read_for_run(path, site, paradigm, where, notes=None):
@@ -110,33 +126,22 @@ def read_for_run(path, site, paradigm, where, notes=None):
     markers : Markers or None
         None when they could not be read (`inspect` will say why).
     """
-    import warnings
-
     import mne
 
     path = Path(path)
     raw = read_raw(path, notes=notes, preload=False)
-    markers = None
     try:
-        with _reading(where):
-            markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where,
-                                      f"[sites.{site.name}.markers.{paradigm.name}]")
+        markers = _markers(raw, site, paradigm, where)
     except InputDataError:
         markers = None
     if markers is not None:
         stim = [raw.ch_names[i] for i in mne.pick_types(raw.info, stim=True, exclude=[])]
         if stim and len(stim) < len(raw.ch_names):
             raw.drop_channels(stim)
-    try:
-        with warnings.catch_warnings(record=True) as said:
-            warnings.simplefilter("always")
-            raw.load_data(verbose="warning")
-    except Exception as exc:  # as in read_raw: one line
-        raise InputDataError(_unreadable(path, exc)) from None
-    if notes is not None:
+    words = _load(raw, path)
+    if notes is not None:  # the loading's own warnings; the header's are in already
         known = {n.get("words") for n in notes}
-        notes.extend(n for n in reader_notes(path, raw, [_plain(str(w.message), path) for w in said])
-                     if n["kind"] == "reader" and n["words"] not in known)
+        notes.extend(n for n in reader_notes(path, raw, words) if n["kind"] == "reader" and n["words"] not in known)
     return raw, markers
 
 
@@ -383,9 +388,7 @@ def inspect(raw, site, paradigm, common_channels, where, markers=None):
               "duration_s": float(raw.n_times / raw.info["sfreq"])}
     _check_length(record["duration_s"], paradigm, where)
     if markers is None:
-        with _reading(where):
-            markers = extract_markers(raw, site.markers[paradigm.name], site.trigger_delay, where,
-                                      f"[sites.{site.name}.markers.{paradigm.name}]")
+        markers = _markers(raw, site, paradigm, where)
     _check_conditions(markers, paradigm, site, where)
     record["trigger_delay_s"] = site.trigger_delay
     renamed = canonical_channel_names(raw.ch_names, site.channel_aliases)
@@ -482,9 +485,8 @@ def harmonise(raw, site, paradigm, common_channels, where, markers=None):
     if abs(raw.info["sfreq"] - target) > 1e-9:
         log.info("Resampled from %g Hz to %g Hz", raw.info["sfreq"], target)
         # Polyphase: anti-alias filter and decimation in one pass (scipy's resample_poly
-        # through mne), in time linear in the recording's length; the FFT method
-        # transforms the whole recording at once (3.6 s of a 15-minute oddball, and
-        # a complex copy of it in memory; benchmarks/NOTES.md).
+        # through mne), in time linear in the recording's length. Measured about as fast
+        # as the FFT method at these lengths, with the same peak memory (benchmarks/NOTES.md).
         from .memory import give_back
 
         give_back()  # the freed temporaries of the checks above, before the largest step

@@ -208,7 +208,8 @@ def _segment_and_reject(raw, markers, paradigm, cleaning):
         detection = detection[[i for i, r in enumerate(dropped) if r is None]]
     data, entries, record = reject(x, times, entries, ch_names, paradigm, baseline, detection, info,
                                    types_of(raw.info, picks), dropped=dropped)
-    record["kept_blinks"] = None if corrected else kept_blinks(raw, entries, window)
+    record["kept_blinks"] = None if corrected else kept_blinks(raw, entries, window,
+                                                                None if blinks is None else blinks["peaks_s"])
     counts = trial_counts(entries, paradigm)
     kept = sum(n["kept"] for n in counts.values())
     log.info("Kept %d of %d trials (%s)", kept, len(entries),
@@ -233,7 +234,7 @@ def _blink_stretches(raw):
     if channel is None:
         return None
     peaks = blink_peaks(raw.get_data(picks=[channel])[0], raw.info["sfreq"])
-    return {"channel": channel, "threshold_uv": BLINK_THRESHOLD_V * 1e6,
+    return {"channel": channel, "threshold_uv": BLINK_THRESHOLD_V * 1e6, "peaks_s": peaks,
             "stretches_s": [(float(p) - BLINK_MARGIN_S, float(p) + BLINK_MARGIN_S) for p in peaks]}
 
 

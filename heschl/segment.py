@@ -161,14 +161,13 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
         holds ``cell_labels`` (ndarray of int8, shape (n_cut, n_channels): 0 within the
         limit, 1 beyond it, 2 interpolated), for the QC page; not JSON-ready.
     """
+    if not (isinstance(x, np.ndarray) and x.flags.writeable and x.dtype == np.float64):
+        x = np.array(x, dtype=float)  # an array this function may change in place
     if baseline is not None and len(x):
         sel = (times >= baseline[0]) & (times <= baseline[1])
-        if x.flags.writeable and x.dtype == np.float64:
-            x -= x[:, :, sel].mean(axis=2, keepdims=True)  # in place: no second copy of the trials
-        else:
-            x = x - x[:, :, sel].mean(axis=2, keepdims=True)
-    keep, reasons, record, x = _decide_rest(x, detection, ch_names, paradigm, info,
-                                            types or ["eeg"] * len(ch_names), dropped)
+        x -= x[:, :, sel].mean(axis=2, keepdims=True)  # in place: no second copy of the trials
+    keep, reasons, record = _decide_rest(x, detection, ch_names, paradigm, info, types or ["eeg"] * len(ch_names),
+                                         dropped)
     data = {c: [] for c in paradigm.conditions}
     for entry in entries:
         idx = entry.get("index")
@@ -190,14 +189,11 @@ def reject(x, times, entries, ch_names, paradigm, baseline=None, detection=None,
 def _decide_rest(x, detection, ch_names, paradigm, info, types, dropped):
     """`_decide` on the trials not dropped beforehand; its results spread back over all.
 
-    Returns the keep mask, the reasons, the record and the analysis data (with the
-    adaptive method's repairs in place).
+    Returns the keep mask, the reasons and the record; the adaptive method's repairs are
+    made in ``x`` itself.
     """
     if dropped is None or not any(dropped):
-        keep, reasons, record = _decide(x, detection, ch_names, paradigm, info, types)
-        if record.get("interpolated_epochs") is not None:
-            x = record.pop("interpolated_epochs")
-        return keep, reasons, record, x
+        return _decide(x, detection, ch_names, paradigm, info, types)
     rest = np.array([r is None for r in dropped], dtype=bool)
     idx = np.flatnonzero(rest)
     if detection is not None and len(detection) != len(idx):
@@ -208,8 +204,6 @@ def _decide_rest(x, detection, ch_names, paradigm, info, types, dropped):
     reasons = list(dropped)
     for i, r in zip(idx, part_reasons):
         reasons[i] = r
-    if record.get("interpolated_epochs") is not None:
-        x = record.pop("interpolated_epochs")  # repaired in place, rows idx
     if record.get("interpolated") is not None:
         full = [[] for _ in range(len(x))]
         for i, names in zip(idx, record["interpolated"]):
@@ -219,7 +213,7 @@ def _decide_rest(x, detection, ch_names, paradigm, info, types, dropped):
         labels = np.zeros((len(x), len(ch_names)), dtype=np.int8)
         labels[idx] = record["cell_labels"]
         record["cell_labels"] = labels
-    return keep, reasons, record, x
+    return keep, reasons, record
 
 
 def _fixed_limits(rejection, types):
@@ -234,7 +228,8 @@ def _fixed_limits(rejection, types):
 
 def _decide(x, detection, ch_names, paradigm, info, types, rows=None):
     """keep mask, reason per trial, and a record, by the paradigm's method, for the trials
-    ``rows`` of ``x`` (all when None; no copy of them is made)."""
+    ``rows`` of ``x`` (all when None; no copy of them is made). The adaptive method repairs
+    the kept trials in ``x`` itself."""
     method = paradigm.rejection.method
     n = len(x) if rows is None else len(rows)
     keep = np.ones(n, dtype=bool)
@@ -262,7 +257,7 @@ def _decide(x, detection, ch_names, paradigm, info, types, rows=None):
         _, keep, found, record = adaptive_reject(x, detection, info, max_cluster=paradigm.rejection.max_cluster,
                                                  random_state=0, n_jobs=1, keep_labels=True, in_place=True,
                                                  rows=rows)
-        record = dict(record, method="adaptive", interpolated_epochs=x, cell_labels=record.pop("labels"))
+        record = dict(record, method="adaptive", cell_labels=record.pop("labels"))
         return keep, list(found), record
     return keep, reasons, {"method": "none"}
 

@@ -101,22 +101,22 @@ def _cut_fif(share):
     return make
 
 
-def _text_as(ext):
+def _bytes_as(ext, content):
+    """A file named like a recording (``ext``) that holds ``content`` instead."""
     def make(raw, base):
         p = base.with_name(base.name + ext)
         p.parent.mkdir(parents=True, exist_ok=True)
-        p.write_text("participant notes: nothing to see here\n" * 20, encoding="utf-8")
+        p.write_bytes(content)
         return p
     return make
+
+
+def _text_as(ext):
+    return _bytes_as(ext, ("participant notes: nothing to see here\n" * 20).encode("utf-8"))
 
 
 def _random_as(ext):
-    def make(raw, base):
-        p = base.with_name(base.name + ext)
-        p.parent.mkdir(parents=True, exist_ok=True)
-        p.write_bytes(np.random.default_rng(7).bytes(40_000))
-        return p
-    return make
+    return _bytes_as(ext, np.random.default_rng(7).bytes(40_000))
 
 
 def _folder_as_fif(raw, base):

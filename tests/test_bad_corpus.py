@@ -246,6 +246,9 @@ def test_every_case_is_in_the_developers_table():
 def test_nan_samples_are_held_and_their_trials_dropped(corpus_run):
     # Before: NaN samples reached the filters and spread over the whole channel; now they
     # are held at the last finite value (a stuck run) and the trials touching 8-9 s drop.
+    # The case (tests/badcorpus.py) writes NaN at 8.0-9.0 s (samples 2000-2250 at 250 Hz);
+    # a trial of the oddball's window -0.1..0.5 s touches it when its onset lies in
+    # 7.5-9.1 s; the lower bound 7.3 is that with 0.2 s of slack.
     import json
 
     pid = corpus_run["ids"]["signal-nan-stretch"]

@@ -120,7 +120,7 @@ def vertical_eog(raw):
     return names[0] if len(names) == 1 else None
 
 
-def kept_blinks(raw, entries, window):
+def kept_blinks(raw, entries, window, peaks=None):
     """How many kept trials contain a blink found on the vertical EOG.
 
     What is left of blinks after cleaning and rejection, measured where it can be: on a
@@ -136,6 +136,8 @@ def kept_blinks(raw, entries, window):
         The trial log (``kept``, ``onset_s``).
     window : (float, float), s
         Trial window around each onset.
+    peaks : ndarray or None, s
+        The blink peaks on the vertical EOG when already found (`blink_peaks`).
 
     Returns
     -------
@@ -146,7 +148,8 @@ def kept_blinks(raw, entries, window):
     channel = vertical_eog(raw)
     if channel is None:
         return None
-    peaks = blink_peaks(raw.get_data(picks=[channel])[0], raw.info["sfreq"])
+    if peaks is None:
+        peaks = blink_peaks(raw.get_data(picks=[channel])[0], raw.info["sfreq"])
     kept = [e for e in entries if e["kept"]]
     hit = sum(bool(np.any((peaks >= e["onset_s"] + window[0] - BLINK_MARGIN_S)
                           & (peaks <= e["onset_s"] + window[1] + BLINK_MARGIN_S))) for e in kept)
